@@ -1,0 +1,9 @@
+"""One module a subcommand; each exposes ``register(subparsers)``.
+
+Shared option helpers live in :mod:`causalcheck.commands.common`. To add a command, write its
+module here and add it to ``COMMAND_MODULES`` (the order is the order in ``--help``).
+"""
+
+COMMAND_MODULES: tuple = ()
+
+__all__ = ["COMMAND_MODULES"]
