@@ -21,6 +21,7 @@ __all__ = [
     "NumericsError",
     "ReportedError",
     "OutputError",
+    "PlanError",
     "Problem",
     "near_matches",
 ]
@@ -77,6 +78,11 @@ class ReportedError(CausalCheckError):
 
 class OutputError(CausalCheckError):
     """An output folder or file cannot be written safely."""
+
+
+class PlanError(CausalCheckError):
+    """Planning inputs that describe no possible study (for example, path strengths that
+    explain more than all of a variable's variance)."""
 
 
 def near_matches(name: str, candidates: Iterable[str]) -> str:
