@@ -1,0 +1,418 @@
+"""Linear regressions solved from :class:`~causalcheck.moments.Moments` in :math:`O(p^3)`.
+
+Every model here has an intercept. With ``C`` the centred cross-product matrix, the slopes of
+``y`` on the regressors ``X`` are
+
+.. math::
+
+    \\hat\\beta = C_{XX}^{-1} C_{Xy}, \\qquad
+    \\mathrm{SSR} = C_{yy} - C_{yX} \\hat\\beta, \\qquad
+    \\hat\\sigma^2 = \\mathrm{SSR} / (n - k - 1), \\qquad
+    \\widehat{\\mathrm{Var}}(\\hat\\beta) = \\hat\\sigma^2 C_{XX}^{-1},
+
+the usual OLS algebra (Frisch–Waugh–Lovell: centring removes the intercept). To keep digits
+the system is first scaled to correlation form (each column divided by its root sum of
+squares), its condition number checked, and solved by a Cholesky factorisation of the
+augmented matrix :math:`[X\\;y]`, whose last pivot squared is :math:`1 - R^2` (no subtraction
+of nearly equal numbers).
+
+Perfectly collinear regressors raise :class:`~causalcheck.errors.NumericsError` naming the
+columns of the linear dependence (read from the null space); nearly collinear ones give a
+:class:`CollinearityWarning` with the condition number.
+
+The heteroskedasticity-consistent HC1 standard errors (MacKinnon & White 1985) need the rows
+once more; :func:`robust_std_error` makes that one pass.
+
+References
+----------
+MacKinnon, J. G. & White, H. (1985). Some heteroskedasticity-consistent covariance matrix
+estimators with improved finite sample properties. Journal of Econometrics 29, 305–325.
+
+Angrist, J. D. & Pischke, J.-S. (2009). Mostly Harmless Econometrics, Ch. 3. Princeton.
+
+Examples
+--------
+>>> import numpy as np
+>>> from causalcheck.moments import moments_from_array
+>>> x = np.array([1.0, 2.0, 3.0, 4.0, 5.0])
+>>> y = 2.0 * x + np.array([0.1, -0.1, 0.0, 0.1, -0.1])
+>>> result = fit(moments_from_array(np.column_stack([x, y]), ["x", "y"]), "y", ["x"])
+>>> round(result.coefficient("x"), 6), result.dof
+(1.98, 3)
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import linalg, stats
+
+from .errors import DataError, NumericsError
+from .moments import Design, Moments
+
+__all__ = [
+    "COLLINEAR_CONDITION",
+    "WARN_CONDITION",
+    "CollinearityWarning",
+    "Interval",
+    "LinearFit",
+    "fit",
+    "partial_r2",
+    "residuals",
+    "robust_std_error",
+]
+
+# Condition number (of the correlation-scaled regressor matrix) above which the regressors are
+# treated as perfectly collinear: about 1e-3 of 1/eps, where rounding noise in the cross
+# products is as large as the smallest eigenvalue.
+COLLINEAR_CONDITION = 1e12
+# Above this the slopes keep fewer than about 8 significant digits: warn (common practice).
+WARN_CONDITION = 1e8
+
+
+class CollinearityWarning(UserWarning):
+    """Regressors are nearly collinear: the slopes are solved but poorly determined."""
+
+
+@dataclass(frozen=True)
+class Interval:
+    """A confidence interval ``[low, high]`` at ``level``."""
+
+    low: float
+    high: float
+    level: float
+
+    def to_dict(self) -> dict[str, float]:
+        return {"low": self.low, "high": self.high, "level": self.level}
+
+    def contains(self, value: float) -> bool:
+        return self.low <= value <= self.high
+
+
+@dataclass(frozen=True, eq=False)
+class LinearFit:
+    """An OLS fit with intercept, solved from moments.
+
+    Attributes
+    ----------
+    outcome : str
+        Design column regressed on the others.
+    regressors : tuple of str
+        Design columns (the intercept is implicit).
+    coef, std_error : ndarray
+        Slopes and classical standard errors, in the order of ``regressors``.
+    intercept : float
+    dof : int
+        Residual degrees of freedom, :math:`n - k - 1`.
+    sigma2 : float
+        Residual variance :math:`\\mathrm{SSR}/\\mathrm{dof}`.
+    r2 : float
+    n : int
+    standardized : ndarray
+        Slopes in standard-deviation units, :math:`\\hat\\beta_j s_{x_j} / s_y`.
+    cov_params : ndarray
+        Classical covariance matrix of the slopes, :math:`\\hat\\sigma^2 C_{XX}^{-1}`.
+    condition_number : float
+        2-norm condition number of the correlation-scaled regressor matrix (1 when k <= 1).
+    regressor_means, outcome_mean : ndarray, float
+        Means used to form residuals in the row pass (keeps digits at large offsets).
+    """
+
+    outcome: str
+    regressors: tuple[str, ...]
+    coef: np.ndarray
+    std_error: np.ndarray
+    intercept: float
+    dof: int
+    sigma2: float
+    r2: float
+    n: int
+    standardized: np.ndarray
+    cov_params: np.ndarray
+    condition_number: float
+    regressor_means: np.ndarray
+    outcome_mean: float
+
+    def _where(self, column: str) -> int:
+        try:
+            return self.regressors.index(column)
+        except ValueError:
+            raise KeyError(f"{column!r} is not a regressor of this fit; the regressors are "
+                           f"{', '.join(self.regressors) or '(none)'}") from None
+
+    def coefficient(self, column: str) -> float:
+        """Slope of ``column``."""
+        return float(self.coef[self._where(column)])
+
+    def se(self, column: str) -> float:
+        """Classical standard error of the slope of ``column``."""
+        return float(self.std_error[self._where(column)])
+
+    def t(self, column: str) -> float:
+        """t statistic, slope / standard error."""
+        se = self.se(column)
+        return self.coefficient(column) / se if se > 0 else math.nan
+
+    def p_value(self, column: str) -> float:
+        """Two-sided p-value of the t test that the slope is zero."""
+        return float(2.0 * stats.t.sf(abs(self.t(column)), self.dof))
+
+    def standardized_coefficient(self, column: str) -> float:
+        return float(self.standardized[self._where(column)])
+
+    def confidence_interval(self, column: str, *, alpha: float = 0.05) -> Interval:
+        """Two-sided :math:`1-\\alpha` interval, :math:`\\hat\\beta \\pm t_{1-\\alpha/2,\\,dof}\\,SE`."""
+        estimate, se = self.coefficient(column), self.se(column)
+        quantile = float(stats.t.ppf(1.0 - alpha / 2.0, self.dof))
+        return Interval(estimate - quantile * se, estimate + quantile * se, 1.0 - alpha)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "outcome": self.outcome, "regressors": list(self.regressors),
+            "coef": self.coef.tolist(), "std_error": self.std_error.tolist(),
+            "intercept": self.intercept, "dof": self.dof, "sigma2": self.sigma2,
+            "r2": self.r2, "n": self.n, "standardized": self.standardized.tolist(),
+            "condition_number": self.condition_number,
+        }
+
+
+def _describe_dependence(vector: np.ndarray, names: Sequence[str]) -> tuple[list[str], str]:
+    """Columns with a visible weight in a null vector, and the relation as text."""
+    weights = vector / np.max(np.abs(vector))
+    involved = [i for i in np.argsort(-np.abs(weights)) if abs(weights[i]) > 1e-6]
+    lead = involved[0]
+    terms = []
+    for i in involved[1:]:
+        factor = -weights[i] / weights[lead]
+        terms.append(f"{factor:+.3g}·{names[i]}")
+    relation = f"{names[lead]} ≈ constant {' '.join(terms)}" if terms else \
+        f"{names[lead]} is constant"
+    return [names[i] for i in involved], relation
+
+
+def fit(moments: Moments, outcome: str, regressors: Sequence[str]) -> LinearFit:
+    """Regress ``outcome`` on ``regressors`` (with an intercept) from moments alone.
+
+    Parameters
+    ----------
+    moments : Moments
+    outcome : str
+        A design column (or a study variable with a single column).
+    regressors : sequence of str
+        Design columns or study variables (a categorical expands to its dummies).
+
+    Returns
+    -------
+    LinearFit
+
+    Raises
+    ------
+    NumericsError
+        When the regressors are perfectly collinear (the message names the columns of the
+        dependence), a regressor is constant, or the outcome is an exact linear function of
+        the regressors.
+    DataError
+        When there are fewer rows than parameters.
+
+    Notes
+    -----
+    With correlation scaling :math:`D = \\mathrm{diag}(C_{XX})^{1/2}`,
+    :math:`R = D^{-1} C_{XX} D^{-1}`, :math:`r = D^{-1} C_{Xy} / \\sqrt{C_{yy}}`, the Cholesky
+    factor of :math:`\\begin{pmatrix} R & r \\\\ r^\\top & 1 \\end{pmatrix}` has last pivot
+    :math:`\\ell` with :math:`\\ell^2 = 1 - R^2`; the slopes are
+    :math:`\\hat\\beta = D^{-1} R^{-1} r \\sqrt{C_{yy}}`.
+
+    References
+    ----------
+    Golub, G. H. & Van Loan, C. F. (2013). Matrix Computations, 4th ed., Sec. 5.3 (normal
+    equations, Cholesky) and Sec. 2.6 (condition). Johns Hopkins University Press.
+    """
+    (y_name,) = _single(moments, outcome)
+    names = tuple(c for c in moments.select(regressors))
+    if y_name in names:
+        raise ValueError(f"the outcome {y_name!r} is also among the regressors")
+    k = len(names)
+    n = moments.n
+    dof = n - k - 1
+    if dof <= 0:
+        raise DataError(
+            f"the regression of {y_name!r} on {k} column{'s' if k != 1 else ''} needs more "
+            f"than {k + 1} rows (one per parameter, intercept included) but only {n} are "
+            "used; add rows or adjust for fewer variables")
+    iy = moments.index(y_name)
+    ix = [moments.index(c) for c in names]
+    syy = float(moments.cross[iy, iy])
+    if not syy > 0:
+        raise NumericsError(f"the outcome {y_name!r} is constant among the {n} rows used; "
+                            "there is no variation to explain")
+    y_scale = math.sqrt(syy)
+    sxx = moments.cross[np.ix_(ix, ix)]
+    sxy = moments.cross[ix, iy]
+    diag = np.diag(sxx).copy()
+    tiny = diag <= 0
+    if tiny.any():
+        bad = [names[i] for i in np.flatnonzero(tiny)]
+        raise NumericsError(
+            f"the regressor{'s' if len(bad) > 1 else ''} {', '.join(repr(b) for b in bad)} "
+            f"{'are' if len(bad) > 1 else 'is'} constant among the {n} rows used, so "
+            "it cannot be adjusted for (it is collinear with the intercept); drop it from the "
+            "adjustment set or check the data")
+    scale = np.sqrt(diag)
+    corr_xx = sxx / np.outer(scale, scale)
+    corr_xy = sxy / (scale * y_scale)
+    condition = 1.0
+    if k >= 1:
+        eigenvalues, eigenvectors = np.linalg.eigh(corr_xx)
+        largest = float(eigenvalues[-1])
+        smallest = float(eigenvalues[0])
+        condition = largest / smallest if smallest > 0 else math.inf
+        if condition > COLLINEAR_CONDITION:
+            columns, relation = _describe_dependence(eigenvectors[:, 0], names)
+            raise NumericsError(
+                f"the regressors {', '.join(repr(c) for c in columns)} are perfectly "
+                f"collinear among the {n} rows used ({relation}; condition number "
+                f"{condition:.3g}), so their separate slopes are not determined. Drop one of "
+                "them from the adjustment set, or check for a column that duplicates or sums "
+                "others (such as a dummy for every level)")
+        if condition > WARN_CONDITION:
+            warnings.warn(
+                f"regressors {', '.join(names)} of {y_name!r} are nearly collinear "
+                f"(condition number {condition:.3g}); their slopes keep only about "
+                f"{max(0, int(16 - math.log10(condition)))} significant digits",
+                CollinearityWarning, stacklevel=2)
+    augmented = np.empty((k + 1, k + 1))
+    augmented[:k, :k] = corr_xx
+    augmented[:k, k] = corr_xy
+    augmented[k, :k] = corr_xy
+    augmented[k, k] = 1.0
+    try:
+        factor = linalg.cholesky(augmented, lower=True, check_finite=False)
+        residual_share = float(factor[k, k] ** 2)  # 1 - R^2
+    except linalg.LinAlgError:
+        residual_share = 0.0
+    if residual_share <= 1e-14:
+        raise NumericsError(
+            f"the outcome {y_name!r} is an exact linear function of "
+            f"{', '.join(names)} among the {n} rows used (R² = 1), so no standard error can "
+            "be computed; check that the outcome is not built from these columns")
+    if k:
+        chol = linalg.cho_factor(corr_xx, lower=True, check_finite=False)
+        # standardised slopes b = R^{-1} r ; beta = b * sqrt(Cyy) / sqrt(Cxx_jj)
+        standardized = linalg.cho_solve(chol, corr_xy, check_finite=False)
+        corr_inverse = linalg.cho_solve(chol, np.eye(k), check_finite=False)
+        coef = standardized * y_scale / scale
+    else:
+        standardized = np.zeros(0)
+        corr_inverse = np.zeros((0, 0))
+        coef = np.zeros(0)
+    ssr = syy * residual_share
+    sigma2 = ssr / dof
+    # Var(beta) = sigma^2 C_XX^{-1} = sigma^2 D^{-1} R^{-1} D^{-1}
+    cov_params = sigma2 * corr_inverse / np.outer(scale, scale)
+    std_error = np.sqrt(np.diag(cov_params))
+    x_means = moments.means[ix]
+    y_mean = float(moments.means[iy])
+    intercept = y_mean - float(x_means @ coef) if k else y_mean
+    return LinearFit(
+        outcome=y_name, regressors=names, coef=coef, std_error=std_error, intercept=intercept,
+        dof=dof, sigma2=sigma2, r2=1.0 - residual_share, n=n,
+        standardized=standardized, cov_params=cov_params, condition_number=condition,
+        regressor_means=x_means.copy(), outcome_mean=y_mean)
+
+
+def _single(moments: Moments, name: str) -> tuple[str]:
+    columns = moments.select([name])
+    if len(columns) != 1:
+        raise ValueError(f"{name!r} has {len(columns)} design columns; an outcome must be one "
+                         "column")
+    return (columns[0],)
+
+
+def partial_r2(fit: LinearFit, column: str) -> float:
+    """Partial R² of ``column`` with the outcome given the other regressors.
+
+    .. math:: R^2_{Y\\sim D\\mid X} = t^2 / (t^2 + \\mathrm{dof})
+
+    References
+    ----------
+    Cinelli, C. & Hazlett, C. (2020). Making sense of sensitivity: extending omitted variable
+    bias. JRSS-B 82(1), 39–67, Sec. 4.
+    """
+    t = fit.t(column)
+    return float(t * t / (t * t + fit.dof))
+
+
+def _rows(source: Design | pd.DataFrame, columns: Sequence[str]) -> np.ndarray:
+    if isinstance(source, Design):
+        return source.take(columns)
+    if isinstance(source, pd.DataFrame):
+        missing = [c for c in columns if c not in source.columns]
+        if missing:
+            raise DataError(f"the frame lacks the design column(s) {missing}; pass the "
+                            "encoded Design, or a frame with these columns")
+        return source[list(columns)].to_numpy(dtype=np.float64)
+    return np.asarray(source, dtype=np.float64)
+
+
+def residuals(source: Design | pd.DataFrame, fit: LinearFit) -> np.ndarray:
+    """Row residuals :math:`e_i = (y_i - \\bar y) - (x_i - \\bar x)^\\top\\hat\\beta`."""
+    values = _rows(source, (*fit.regressors, fit.outcome))
+    centred_x = values[:, :-1] - fit.regressor_means
+    return (values[:, -1] - fit.outcome_mean) - centred_x @ fit.coef
+
+
+def robust_std_error(source: Design | pd.DataFrame, fit: LinearFit, *,
+                     chunk_rows: int = 1 << 16) -> np.ndarray:
+    """HC1 heteroskedasticity-consistent standard errors of the slopes (one pass over rows).
+
+    Parameters
+    ----------
+    source : Design or DataFrame
+        The rows the fit was computed from (a DataFrame must hold the design columns).
+    fit : LinearFit
+
+    Returns
+    -------
+    ndarray
+        One HC1 standard error per regressor.
+
+    Notes
+    -----
+    .. math::
+
+        \\widehat{\\mathrm{Var}}_{HC1}(\\hat\\beta) = \\frac{n}{n-k-1}
+        C_{XX}^{-1} \\Big(\\sum_i e_i^2 \\tilde x_i \\tilde x_i^\\top\\Big) C_{XX}^{-1},
+
+    with :math:`\\tilde x_i = x_i - \\bar x`; by Frisch–Waugh–Lovell this is the slope block of
+    the sandwich with an explicit intercept. It is accumulated as
+    :math:`\\sum_i e_i^2 w_i w_i^\\top` with :math:`w_i = C_{XX}^{-1}\\tilde x_i`, only its
+    diagonal being needed.
+
+    References
+    ----------
+    MacKinnon, J. G. & White, H. (1985). Journal of Econometrics 29, 305–325 (HC1).
+    """
+    k = len(fit.regressors)
+    if k == 0:
+        return np.zeros(0)
+    values = _rows(source, (*fit.regressors, fit.outcome))
+    if values.shape[0] != fit.n:
+        raise ValueError(f"the rows ({values.shape[0]}) are not the rows of the fit ({fit.n})")
+    # C_XX^{-1} = cov_params / sigma^2
+    inverse = fit.cov_params / fit.sigma2
+    total = np.zeros(k)
+    for start in range(0, values.shape[0], chunk_rows):
+        chunk = values[start:start + chunk_rows]
+        centred_x = chunk[:, :-1] - fit.regressor_means
+        # e_i = (y_i - ybar) - (x_i - xbar)' beta
+        error = (chunk[:, -1] - fit.outcome_mean) - centred_x @ fit.coef
+        weights = centred_x @ inverse
+        total += (error * error) @ (weights * weights)
+    # HC1: scale the HC0 sandwich by n / (n - k - 1)
+    return np.sqrt(total * fit.n / fit.dof)
