@@ -62,6 +62,10 @@ def write_atomic(path: str | Path, content: str | bytes) -> Path:
         raise OutputError(f"cannot write {str(path)!r} ({e.strerror}); check the folder's "
                           "permissions") from None
     try:
+        # mkstemp creates the file 0600; give the report the permissions a normal write would
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(temporary, 0o666 & ~umask)
         with os.fdopen(handle, "wb") as stream:
             stream.write(data)
         os.replace(temporary, path)
