@@ -250,7 +250,7 @@ class _Collector:
             if find is not None and find in line:
                 return number
             if find is None and key is not None:
-                bare = key.strip('"')
+                bare = key.strip('"') if key.startswith('"') else key.split(".")[0]
                 if re.match(rf'^\s*"?{re.escape(bare)}"?\s*=', line):
                     return number
         return first
@@ -303,6 +303,10 @@ def parse_study(text: str, *, path: str | Path | None = None) -> Study:
     except tomllib.TOMLDecodeError as e:
         line = getattr(e, "lineno", None)
         message = getattr(e, "msg", str(e))
+        if line is None:      # Python < 3.14: "... (at line 3, column 11)" in the message
+            found = re.search(r"\(at line (\d+), column \d+\)", message)
+            line = int(found.group(1)) if found else None
+        message = _plain_toml_message(message)
         raise StudyFileError(source, [Problem(
             "TOML syntax", f"{message}; fix the TOML syntax there (strings need double quotes, "
             "tables are written [name], lists [a, b])", line)]) from None
@@ -312,6 +316,26 @@ def parse_study(text: str, *, path: str | Path | None = None) -> Study:
         raise StudyFileError(source, out.problems)
     assert study is not None
     return _replace_path(study, Path(path) if path is not None else None)
+
+
+_TOML_MESSAGES = (
+    (re.compile(r"^Cannot declare \('([^']*)',?\) twice"),
+     "the table [{0}] is declared twice; merge its keys under one [{0}] header"),
+    (re.compile(r"^Cannot overwrite a value"),
+     "a key on this line is already set (given twice, or also set as a table); give each "
+     "key once"),
+    (re.compile(r"^Illegal character '\\n'"),
+     "a string runs to the end of the line; close it with a double quote"),
+)
+
+
+def _plain_toml_message(message: str) -> str:
+    """The TOML reader's message, with the common ones said in plain words first."""
+    for pattern, plain in _TOML_MESSAGES:
+        found = pattern.match(message)
+        if found:
+            return plain.format(*found.groups()) + f" ({message})"
+    return message
 
 
 def _replace_path(study: Study, path: Path | None) -> Study:
@@ -383,11 +407,18 @@ def _name_list(out: _Collector, where: str, value: Any) -> tuple[str, ...] | Non
     return tuple(value)
 
 
+def _home_of(key: str) -> str:
+    """``" (it belongs in [controls])"`` when ``key`` is a key of other tables, else ``""``."""
+    homes = [f"[{t}]" for t, keys in _ALLOWED.items() if key in keys]
+    return f" (it belongs in {' or '.join(homes)})" if homes else ""
+
+
 def _unknown_keys(out: _Collector, where: str, table: Mapping[str, Any],
                   allowed: tuple[str, ...]) -> None:
     for key in table:
         if key not in allowed:
-            out.add(f"{where}.{key}", f"is not a known key{near_matches(key, allowed)}; "
+            hint = near_matches(key, allowed) or _home_of(key)
+            out.add(f"{where}.{key}", f"is not a known key{hint}; "
                     f"the keys allowed here are {', '.join(allowed)}")
 
 
@@ -396,7 +427,20 @@ def _unknown_keys(out: _Collector, where: str, table: Mapping[str, Any],
 
 def _build(doc: dict[str, Any], out: _Collector, base: Path) -> Study | None:
     for section, value in doc.items():
-        if section not in _ALLOWED:
+        if section not in _ALLOWED and not isinstance(value, dict):
+            # a key before the first [table] header (a deleted or misspelt header)
+            line = next((i for i, text in enumerate(out.lines, start=1)
+                         if re.match(r"^\s*\[", text) or re.match(
+                             rf'^\s*"?{re.escape(section)}"?\s*=', text)), None)
+            if line is not None and re.match(r"^\s*\[", out.lines[line - 1]):
+                line = None
+            home = _home_of(section)
+            out.problems.append(Problem(
+                section, f"= {value!r} stands outside every table (before the first [table] "
+                f"header){home}; put it under its table's header"
+                + ("" if home else f", one of {', '.join('[' + s + ']' for s in _ALLOWED)}"),
+                line))
+        elif section not in _ALLOWED:
             out.add(f"[{section}]", f"is not a known table{near_matches(section, _ALLOWED)}; "
                     f"the tables are {', '.join('[' + s + ']' for s in _ALLOWED)}")
         elif not isinstance(value, dict):
@@ -415,6 +459,10 @@ def _build(doc: dict[str, Any], out: _Collector, base: Path) -> Study | None:
         if not isinstance(raw_edges, list):
             out.add("[graph].edges", f"must be a list of strings like \"a -> b\"; got "
                     f"{raw_edges!r}")
+        elif not raw_edges:
+            out.add("[graph].edges", "is empty; list the edges as edges = [\"a -> b\", ...] "
+                    "or remove the [graph] table (a graph is optional only for vetting a "
+                    "[reported] table)")
         else:
             seen_edges: set[tuple[str, str]] = set()
             for i, raw in enumerate(raw_edges):
