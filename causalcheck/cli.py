@@ -10,11 +10,12 @@ from __future__ import annotations
 
 import argparse
 import sys
+import warnings
 from typing import Sequence
 
 from . import __version__
 from .commands import COMMAND_MODULES
-from .errors import CausalCheckError
+from .errors import CausalCheckError, CausalCheckWarning
 
 __all__ = ["main", "build_parser"]
 
@@ -51,15 +52,40 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help(sys.stderr)
         return 2
     try:
-        return int(args.handler(args))
+        return _run(args)
     except CausalCheckError as error:
         print(f"causalcheck {args.command}: error: {error}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
-        print("causalcheck: interrupted; no report was written", file=sys.stderr)
+        if getattr(args, "out", None) is not None:
+            print(f"causalcheck {args.command}: interrupted; no file was left half-written, "
+                  f"but {str(args.out)!r} may hold only part of the report: run again to "
+                  "complete it", file=sys.stderr)
+        else:
+            print(f"causalcheck {args.command}: interrupted; no report was written",
+                  file=sys.stderr)
         return 130
     except BrokenPipeError:
         return 0
+
+
+def _run(args: argparse.Namespace) -> int:
+    """Call the handler, printing each of the tool's own warnings once as one line."""
+    shown: set[str] = set()
+    with warnings.catch_warnings():
+        warnings.simplefilter("always", CausalCheckWarning)
+        original = warnings.showwarning
+
+        def show(message, category, filename, lineno, file=None, line=None):  # noqa: ANN001
+            if not issubclass(category, CausalCheckWarning):
+                return original(message, category, filename, lineno, file, line)
+            if str(message) not in shown:
+                shown.add(str(message))
+                print(f"causalcheck {args.command}: warning: {message}", file=sys.stderr)
+            return None
+
+        warnings.showwarning = show
+        return int(args.handler(args))
 
 
 if __name__ == "__main__":  # pragma: no cover

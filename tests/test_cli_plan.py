@@ -92,9 +92,12 @@ def test_text_verdict_first_then_table(tmp_path, capsys):
     blocks = out.split("\n\n")
     assert blocks[0].startswith("Heat-pump grants and winter energy bills — study plan")
     verdict = blocks[1]
-    assert verdict.startswith("Measure attitude and floor_area (cost 48, within the budget "
-                              "of 50) and adjust for attitude, floor_area and income")
-    assert "If you measure nothing more, the best you can do is adjust for income" in verdict
+    # the verdict names variables by their labels (causalcheck.report.verdict)
+    assert verdict.startswith("Measure Environmental attitude and Floor area (cost 48, within "
+                              "the budget of 50) and adjust for Environmental attitude, Floor "
+                              "area and Household income")
+    assert ("If you measure nothing more, the best you can do is adjust for Household income"
+            in verdict)
     assert "1 edge had no strength and was given the default 0.2." in verdict
     table = blocks[2].splitlines()
     assert table[0].startswith("Options (* recommended")
@@ -108,7 +111,7 @@ def test_text_verdict_first_then_table(tmp_path, capsys):
 def test_quiet_prints_the_verdict_only(tmp_path, capsys):
     code, out, _ = run(capsys, str(write(tmp_path, GRANTS)), "--quiet")
     assert code == 0
-    assert out.count("\n") == 1 and out.startswith("Measure attitude and floor_area")
+    assert out.count("\n") == 1 and out.startswith("Measure Environmental attitude and Floor area")
 
 
 def test_simulation_in_json_and_seeded(tmp_path, capsys):
@@ -132,9 +135,9 @@ def test_out_folder_written_and_never_clobbered(tmp_path, capsys):
     code, _, _ = run(capsys, str(path), "--out", str(folder), "--quiet")
     assert code == 0
     written = {p.name for p in folder.iterdir()}
-    assert {"result.json", "report.md", "report.html", "pareto.png"} <= written
+    assert {"result.json", "report.md", "report.html", "plan.png"} <= written
     assert json.loads((folder / "result.json").read_text())["schema"] == "causalcheck/plan/1"
-    assert (folder / "pareto.png").read_bytes()[:4] == b"\x89PNG"
+    assert (folder / "plan.png").read_bytes()[:4] == b"\x89PNG"
     # a folder the user owns is refused, and nothing in it is touched
     mine = tmp_path / "mine"
     mine.mkdir()

@@ -54,7 +54,7 @@ def test_study_file_text_report(capsys, study_file):
     code, out, _ = run(capsys, study_file)
     assert code == 0
     assert out.startswith("Heat-pump grants and winter energy bills\n")
-    assert "would bring the estimate to 0" in out
+    assert "would bring the estimate to the threshold, 0" in out
 
 
 def test_flags_override_the_file_and_say_so(capsys, study_file):

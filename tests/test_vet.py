@@ -90,22 +90,23 @@ threshold = 0.2
 
 def test_verdict_paragraph_in_plain_words():
     text = verdict(vet(DARFUR))
-    assert ("A hidden confounder explaining 13.9% of the residual variance of both the treatment "
+    assert ("A hidden confounder explaining 13.9% of the remaining variance of both the treatment "
             "and the outcome") in text
-    assert "would bring the estimate to 0; one explaining 7.6% of both would make the 95% CI " \
-           "include 0" in text
-    assert "at least 2.2% of the treatment's" in text
+    assert "would bring the estimate to the threshold, 0; one explaining 7.63% of both would " \
+           "make the 95% confidence interval include 0" in text
+    assert "at least 2.19% of the treatment's" in text
 
 
 def test_verdict_when_the_interval_already_includes_the_threshold():
     text = verdict(vet(Reported(estimate=0.1, std_error=0.08, dof=300)))
-    assert "The 95% CI already includes 0, so no hidden confounding is needed" in text
+    assert "The 95% confidence interval already includes 0, so no hidden confounding is " \
+           "needed" in text
 
 
 def test_verdict_for_a_ratio():
     text = verdict(vet(Reported(estimate=3.9, ci=(1.8, 8.7), measure="risk_ratio")))
     assert "by a risk ratio of 7.26 each" in text
-    assert "one of 3.00 each could move the CI to include 1" in text
+    assert "one of 3.00 each could move the confidence interval to include 1" in text
 
 
 def test_text_report_puts_the_verdict_first_then_tables():

@@ -4,6 +4,8 @@ Shared option helpers live in :mod:`causalcheck.commands.common`. To add a comma
 module here and add it to ``COMMAND_MODULES`` (the order is the order in ``--help``).
 """
 
-COMMAND_MODULES: tuple = ()
+from . import audit, controls, plan, vet, wording
+
+COMMAND_MODULES: tuple = (controls, audit, vet, plan, wording)
 
 __all__ = ["COMMAND_MODULES"]

@@ -18,9 +18,9 @@ from typing import Any
 
 from ..plan import PlanOption, PlanResult, plan
 from ..report.context import attach_context
-from ..report.files import prepare_output_folder, write_atomic
-from ..report.jsonout import dumps
+from ..report.bundle import write_bundle
 from ..report.numbers import fixed, percent, significant
+from ..report.verdict import plan_verdict
 from ..simulate import SimulationResult
 from ..study import load_study
 from .common import add_output_options, emit
@@ -72,16 +72,11 @@ def run(args: argparse.Namespace) -> int:
     document = attach_context(result.to_dict(), study)
 
     def text() -> str:
-        return render_text(result, quiet=args.quiet)
+        return render_text(result, quiet=args.quiet, document=document)
 
     def bundle(folder: Path) -> None:
-        folder = prepare_output_folder(folder, force=args.force)
-        write_atomic(folder / "result.json", dumps(document))
-        write_atomic(folder / "report.md", render_markdown(result))
-        write_atomic(folder / "report.html", render_html(result))
-        figure = _pareto_figure(result)
-        if figure is not None:
-            write_atomic(folder / "pareto.png", figure)
+        # report.html, report.md, result.json and the figures (causalcheck.report.bundle)
+        write_bundle(folder, document, kind="plan", force=args.force)
 
     return emit(args, document, text, write_bundle=bundle)
 
@@ -113,97 +108,13 @@ def _decimals(result: PlanResult) -> int:
     return max(3, min(6, 1 - math.floor(math.log10(smallest))))
 
 
-def verdict(result: PlanResult) -> str:
-    """The verdict paragraph: what to measure, what it costs, the bias left otherwise, how sure."""
-    d = _decimals(result)
-    rec, base = result.recommended, result.baseline
-    level = percent(1 - result.alpha)
-    sentences: list[str] = []
-    budget = ""
-    if result.budget is not None and rec.within_budget:
-        budget = f", within the budget of {significant(result.budget)}"
-    how_sure = _how_sure(result, rec, d, level)
-    if rec.valid and rec.key == base.key:
-        sentences.append(
-            f"Measure nothing more: adjusting for {_set(rec.adjust_for)}, already measured, "
-            f"estimates the effect of {result.treatment} on {result.outcome} without bias; "
-            f"{how_sure}.")
-    elif rec.valid:
-        sentences.append(
-            f"Measure {_list(rec.measure)} (cost {significant(rec.cost)}{budget}) and adjust "
-            f"for {_set(rec.adjust_for)}: this estimates the effect of {result.treatment} on "
-            f"{result.outcome} without bias; {how_sure}.")
-    else:
-        what = (f"measure {_list(rec.measure)} (cost {significant(rec.cost)}{budget}) and "
-                if rec.measure else "measure nothing more and ")
-        why = ("no valid adjustment set exists even if everything is measured"
-               if result.best_valid is None else
-               "no unbiased plan fits the budget" if not result.best_valid.within_budget else
-               "a biased plan has the lowest RMSE at this n")
-        sentences.append(
-            f"The best plan is to {what}adjust for {_set(rec.adjust_for)}, but it stays "
-            f"biased by {_n(rec.bias, d, sign=True)} because {why}; {how_sure}.")
-        if result.best_valid is not None:
-            bv = result.best_valid
-            sentences.append(
-                f"The best unbiased plan measures {_list(bv.measure) or 'nothing more'} "
-                f"(cost {significant(bv.cost)}) and adjusts for {_set(bv.adjust_for)} (RMSE "
-                f"{_n(bv.rmse, d)}).")
-    if rec.key != base.key:
-        if base.valid:
-            sentences.append(
-                f"Measuring nothing more is also unbiased (adjust for {_set(base.adjust_for)})"
-                f" but less precise: standard error {_n(base.std_error, d)}.")
-        else:
-            ratio = abs(base.bias) / base.std_error if base.std_error > 0 else float("inf")
-            sentences.append(
-                f"If you measure nothing more, the best you can do is adjust for "
-                f"{_set(base.adjust_for)}, which leaves a bias of {_n(base.bias, d, sign=True)}"
-                f" ({significant(ratio, 2)} standard errors; RMSE {_n(base.rmse, d)}) that "
-                "more rows will not remove.")
-    if result.biased_beats_unbiased:
-        sentences.append(
-            "A biased plan beats every unbiased one in RMSE at this n; that rests on the "
-            "assumed strengths, and its bias does not shrink with more rows.")
-    sweep = result.sweep
-    if sweep is not None and rec.over_range is not None:
-        worst = rec.over_range
-        text = (f"Over the strength ranges ({sweep.used} of {sweep.requested} draws possible), "
-                f"the recommended plan's RMSE is at most {_n(worst.rmse_worst, d)}")
-        if not rec.valid:
-            text += f" and its |bias| at most {_n(worst.bias_abs_worst, d)}"
-        if rec.key != base.key and base.over_range is not None and not base.valid:
-            text += (f"; measuring nothing more leaves a |bias| of up to "
-                     f"{_n(base.over_range.bias_abs_worst, d)}")
-        sentences.append(text + ".")
-        robust = result.recommended_worst_case
-        if robust is not None and robust.key != rec.key and robust.over_range is not None:
-            sentences.append(
-                f"Judged by the worst case over the ranges instead, the best plan "
-                f"{'within the budget ' if result.budget is not None else ''}is to measure "
-                f"{_list(robust.measure) or 'nothing more'} (cost {significant(robust.cost)})"
-                f" and adjust for {_set(robust.adjust_for)}: worst RMSE "
-                f"{_n(robust.over_range.rmse_worst, d)} against "
-                f"{_n(worst.rmse_worst, d)}.")
-    elif sweep is not None:
-        sentences.append(f"Every one of the {sweep.requested} draws over the strength ranges "
-                         "was impossible (some variable's parents would explain all of its "
-                         "variance); narrow the ranges.")
-    defaulted = result.model.strengths.defaulted
-    if defaulted:
-        sentences.append(
-            f"{len(defaulted)} edge{'s' if len(defaulted) != 1 else ''} had no strength and "
-            f"{'were' if len(defaulted) != 1 else 'was'} given the default "
-            f"{significant(result.model.strengths.default_strength)}.")
-    if result.simulation is not None:
-        sim = next((o for o in result.simulation.options
-                    if (o.measure, o.adjust_for) == rec.key), None)
-        if sim is not None:
-            sentences.append(
-                f"In {result.simulation.replications:,} simulated studies its {level} "
-                f"intervals covered the true effect {percent(sim.coverage, 3)} of the time "
-                f"and excluded zero in {percent(sim.power, 3)}.")
-    return " ".join(sentences)
+def verdict(result: PlanResult, *, document: dict[str, Any] | None = None) -> str:
+    """The verdict paragraph, from :func:`causalcheck.report.verdict.plan_verdict`.
+
+    ``document`` is the result document with the study context; without it the verdict is
+    built from ``result.to_dict()``.
+    """
+    return plan_verdict(document if document is not None else result.to_dict()).text
 
 
 def _how_sure(result: PlanResult, option: PlanOption, d: int, level: str) -> str:
@@ -319,11 +230,12 @@ def _simulation_lines(simulation: SimulationResult, result: PlanResult) -> tuple
     return head, rows
 
 
-def render_text(result: PlanResult, *, quiet: bool = False) -> str:
+def render_text(result: PlanResult, *, quiet: bool = False,
+                document: dict[str, Any] | None = None) -> str:
     """The plain-text report: verdict paragraph first, then the aligned table of options."""
     if quiet:
-        return verdict(result)
-    lines = [*_header(result), "", verdict(result), ""]
+        return verdict(result, document=document)
+    lines = [*_header(result), "", verdict(result, document=document), ""]
     head, rows, hidden = _option_rows(result)
     lines.append("Options (* recommended, P on the Pareto front of cost against RMSE, "
                  "B measure nothing more):")

@@ -20,8 +20,10 @@ from typing import Any
 import numpy as np
 
 from ..errors import ReportedError
-from ..report.files import prepare_output_folder, write_atomic
-from ..report.jsonout import dumps
+from ..report.bundle import write_bundle
+from ..report.context import attach_context
+from ..report.files import write_atomic
+from ..report.verdict import vet_verdict
 from ..report.numbers import count, interval, is_number, percent, significant
 from ..reported import apply_overrides
 from ..study import MEASURES, load_study
@@ -166,7 +168,7 @@ def run(args: argparse.Namespace) -> int:
     result = vet(target, threshold=threshold, alpha=alpha, names=FLAG_NAMES,
                  overrides=notes, overridden=given)
     gates = _gate(args, result)
-    document = result.to_dict()
+    document = attach_context(result.to_dict(), study)
 
     if args.grid_csv is not None:
         points = args.grid_points or (study.sensitivity.grid_points if study else 101)
@@ -174,13 +176,11 @@ def run(args: argparse.Namespace) -> int:
         document["grid_csv"] = str(written)
 
     def text() -> str:
-        return render_text(result, quiet=args.quiet)
+        return render_text(result, quiet=args.quiet, document=document)
 
     def bundle(folder: Path) -> None:
-        folder = prepare_output_folder(folder, force=args.force)
-        write_atomic(folder / "result.json", dumps(document))
-        write_atomic(folder / "report.md", render_markdown(result))
-        write_figure(result, folder / "sensitivity.png")
+        # report.html, report.md, result.json and the figures (causalcheck.report.bundle)
+        write_bundle(folder, document, kind="vet", force=args.force)
 
     return emit(args, document, text, write_bundle=bundle, gates=gates)
 
@@ -243,88 +243,27 @@ def _wrap(text: str, width: int = 92, *, indent: str = "") -> str:
                                    subsequent_indent=indent))
 
 
-def verdict(result: VetResult) -> str:
-    """The verdict paragraph: what strength of hidden confounding would overturn the result."""
-    s = result.summary
-    level = f"{s.ci_level:.0%}"
-    rv_level = f"{1 - result.alpha:.0%}"
-    theta = _num(result.threshold)
-    sentences: list[str] = []
-    low, high = s.reported_ci
-    what = s.measure.replace("_", " ") if s.is_ratio else "estimate"
-    dof_text = f" on {count(s.dof)} residual degrees of freedom" if s.dof is not None else ""
-    computed = ", computed from its standard error" if not s.ci_given else ""
-    scale = " of the log ratio" if s.is_ratio else ""
-    sentences.append(
-        f"The reported {what} is {_num(s.reported_estimate)} ({level} CI "
-        f"{interval(low, high, like=s.reported_estimate)}{computed}; t{scale} = "
-        f"{significant(s.t, 3)}{dof_text}).")
-    rv = result.robustness
-    if rv is not None:
-        share = ("of the residual variance of both the treatment and the outcome (the part "
-                 "the reported covariates leave unexplained)")
-        if rv.point == 0:
-            sentences.append(f"The estimate already equals {theta}, so no hidden confounding "
-                             "is needed to bring it there.")
-        elif rv.ci == 0:
-            sentences.append(
-                f"The {rv_level} CI already includes {theta}, so no hidden confounding is "
-                f"needed for that; a hidden confounder explaining {_pct(rv.point)} {share} "
-                f"would bring the estimate itself to {theta}.")
-        else:
-            if math.isclose(rv.ci_r2yz, rv.ci, rel_tol=1e-9):
-                ci_part = (f"one explaining {_pct(rv.ci)} of both would make the {rv_level} CI "
-                           f"include {theta}")
-            else:
-                ci_part = (f"one explaining {_pct(rv.ci)} of the treatment's and "
-                           f"{_pct(rv.ci_r2yz)} of the outcome's residual variance would make "
-                           f"the {rv_level} CI include {theta}")
-            sentences.append(f"A hidden confounder explaining {_pct(rv.point)} {share} would "
-                             f"bring the estimate to {theta}; {ci_part}.")
-        if rv.point > 0:
-            sentences.append(
-                f"Even a confounder explaining all the residual variance of the outcome would "
-                f"need to explain at least {_pct(rv.extreme_r2dz)} of the treatment's to bring "
-                f"the estimate to {theta}.")
-    ev = result.e_value
-    if ev is not None:
-        null = "1" if math.isclose(ev.null, 1.0) else _num(ev.null)
-        if ev.point <= 1 + 1e-12:
-            sentences.append("On the risk-ratio scale the estimate is at the null already "
-                             "(E-value 1).")
-        else:
-            ev_text = (f"On the risk-ratio scale, a hidden confounder associated with both the "
-                       f"treatment and the outcome by a risk ratio of {ev.point:.2f} each, "
-                       f"beyond the measured covariates, could explain the estimate away "
-                       f"(E-value {ev.point:.2f})")
-            if ev.ci is not None and ev.ci > 1 + 1e-12:
-                ev_text += (f", and one of {ev.ci:.2f} each could move the CI to include "
-                            f"{null}; weaker confounding could do neither.")
-            elif ev.ci is not None:
-                ev_text += (f"; weaker confounding could not. The CI already includes a risk "
-                            f"ratio of {null}.")
-            else:
-                ev_text += "; weaker confounding could not."
-            sentences.append(ev_text)
-    sentences.append("Whether confounders this strong are plausible is a judgement about the "
-                     "study: compare them with the strongest measured covariates"
-                     + (" (causalcheck audit benchmarks them when the data are at hand)."
-                        if rv is not None else "."))
-    return " ".join(sentences)
+def verdict(result: VetResult, *, document: dict[str, Any] | None = None) -> str:
+    """The verdict paragraph, from :func:`causalcheck.report.verdict.vet_verdict`.
+
+    ``document`` is the result document with the study context; without it the verdict is
+    built from ``result.to_dict()``.
+    """
+    return vet_verdict(document if document is not None else result.to_dict()).text
 
 
 _SE_HOW = {"std_error": "given", "ci": "from the CI width", "t": "from |estimate / t|",
            "p_value": "from the p-value"}
 
 
-def render_text(result: VetResult, *, quiet: bool = False) -> str:
-    """The text report: the verdict paragraph first, then tables and notes."""
+def render_text(result: VetResult, *, quiet: bool = False,
+                document: dict[str, Any] | None = None) -> str:
+    """The text report: the verdict paragraph first (it names any overridden numbers), then
+    tables and notes."""
     parts: list[str] = []
     if result.title and not quiet:
         parts += [result.title, "=" * len(result.title), ""]
-    parts.append(_wrap(verdict(result)))
-    if result.overrides:
-        parts += ["", *(_wrap(f"({note}.)") for note in result.overrides)]
+    parts.append(_wrap(verdict(result, document=document)))
     if quiet:
         return "\n".join(parts) + "\n"
     s = result.summary
