@@ -24,6 +24,8 @@ __all__ = [
     "PlanError",
     "Problem",
     "near_matches",
+    "CausalCheckWarning",
+    "DegenerateWarning",
 ]
 
 
@@ -83,6 +85,18 @@ class OutputError(CausalCheckError):
 class PlanError(CausalCheckError):
     """Planning inputs that describe no possible study (for example, path strengths that
     explain more than all of a variable's variance)."""
+
+
+class CausalCheckWarning(UserWarning):
+    """Base class of the warnings the tool gives a user; the command line prints each once as
+    ``causalcheck CMD: warning: ...`` on stderr, and the report carries the same words as a
+    note."""
+
+
+class DegenerateWarning(CausalCheckWarning):
+    """Legal input with a degenerate result: a number that is undefined (``nan``, written as
+    null) or infinite, such as the interval at a tiny dof or the direction of bias of an
+    estimate that sits exactly on its threshold."""
 
 
 def near_matches(name: str, candidates: Iterable[str]) -> str:

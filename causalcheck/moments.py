@@ -48,7 +48,7 @@ Examples
 from __future__ import annotations
 
 import warnings
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -56,7 +56,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from .errors import DataError, near_matches
+from .errors import CausalCheckWarning, DataError, near_matches
 
 if TYPE_CHECKING:  # pragma: no cover
     from .study import DataSpec, Study
@@ -83,12 +83,12 @@ __all__ = [
 CSV_SUFFIXES = (".csv", ".tsv", ".txt")
 PARQUET_SUFFIXES = (".parquet", ".pq")
 _COMPRESSION = (".gz", ".bz2", ".xz", ".zst", ".zip")
-_CHUNK_ROWS = 1 << 16
+_CHUNK_ROWS = 1 << 17
 _TRUE = ("true", "yes", "y", "t", "1", "1.0")
 _FALSE = ("false", "no", "n", "f", "0", "0.0")
 
 
-class EmptyLevelWarning(UserWarning):
+class EmptyLevelWarning(CausalCheckWarning):
     """A declared level of a categorical variable has no row among the rows used."""
 
 
@@ -101,17 +101,20 @@ class RowCount:
     """How many rows were read, used and dropped, and which columns were missing.
 
     ``missing`` maps each study variable to the number of rows (of those read) in which it is
-    missing; a row missing several variables counts once in ``dropped_missing``.
+    missing; a row missing several variables counts once in ``dropped_missing``. ``engine``
+    names what read the rows (``pandas``, ``stream`` or ``dask``; see
+    :mod:`causalcheck.engines`).
     """
 
     read: int
     used: int
     dropped_missing: int
     missing: Mapping[str, int] = field(default_factory=dict)
+    engine: str = "pandas"
 
     def to_dict(self) -> dict[str, Any]:
         return {"read": self.read, "used": self.used, "dropped_missing": self.dropped_missing,
-                "missing_by_column": dict(self.missing)}
+                "missing_by_column": dict(self.missing), "engine": self.engine}
 
 
 @dataclass(frozen=True, eq=False)
@@ -209,29 +212,60 @@ class Moments:
 
 @dataclass(frozen=True, eq=False)
 class Design:
-    """The encoded rows: one float64 column per design column, missing rows dropped.
+    """The encoded rows: one float64 array per design column, missing rows dropped.
 
-    Used for the single extra pass that row-level statistics need (robust standard errors,
-    residual checks); everything else works from :class:`Moments`.
+    Columns are kept as separate 1-D arrays — views of the caller's frame where no conversion
+    or row dropping was needed — so that encoding a large frame copies nothing. Row-level
+    passes (moments, robust standard errors) read them in chunks with :meth:`chunks`.
     """
 
     columns: tuple[str, ...]
-    values: np.ndarray                       # (n, p) float64
+    data: tuple[np.ndarray, ...]            # one (n,) float64 array per design column
     groups: Mapping[str, tuple[str, ...]]
     rows: RowCount
     levels: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
 
     @property
     def n(self) -> int:
-        return int(self.values.shape[0])
+        return int(self.rows.used)
 
     def column(self, name: str) -> np.ndarray:
-        return self.values[:, self.columns.index(name)]
+        """One design column (length n)."""
+        return self.data[self.columns.index(name)]
 
     def take(self, columns: Sequence[str]) -> np.ndarray:
-        """The rows of some design columns, as an (n, k) array."""
-        idx = [self.columns.index(c) for c in columns]
-        return self.values[:, idx]
+        """Some design columns as one column-major (n, k) array (a copy)."""
+        if not columns:
+            return np.empty((self.n, 0), dtype=np.float64, order="F")
+        # stacking (k, n) then transposing is much faster than filling columns one by one
+        return np.vstack([self.column(c) for c in columns]).T
+
+    @property
+    def values(self) -> np.ndarray:
+        """All design columns as one (n, p) array (a copy; prefer :meth:`chunks`)."""
+        return self.take(self.columns)
+
+    def chunks(self, columns: Sequence[str] | None = None, *, rows: int = _CHUNK_ROWS,
+               centre: Sequence[float] | np.ndarray | None = None) -> Iterator[np.ndarray]:
+        """Row chunks of the given columns (default all) as (rows, k) arrays.
+
+        With ``centre`` each column has its value subtracted while it is copied (one pass).
+        The chunk array is a reused buffer: copy it if you keep it past the next iteration.
+        """
+        index = range(len(self.columns)) if columns is None else \
+            [self.columns.index(c) for c in columns]
+        arrays = [self.data[i] for i in index]
+        offsets = np.zeros(len(arrays)) if centre is None else np.asarray(centre, dtype=float)
+        buffer = np.empty((len(arrays), min(rows, max(self.n, 1))), dtype=np.float64)
+        for start in range(0, self.n, rows):
+            stop = min(start + rows, self.n)
+            width = stop - start
+            for j, array in enumerate(arrays):
+                if centre is None:
+                    buffer[j, :width] = array[start:stop]
+                else:
+                    np.subtract(array[start:stop], offsets[j], out=buffer[j, :width])
+            yield buffer[:, :width].T
 
 
 # --------------------------------------------------------------------------------------------
@@ -349,7 +383,10 @@ def _read_csv(path: Path, columns: list[str]) -> pd.DataFrame:
     try:
         table = pacsv.read_csv(
             path, parse_options=pacsv.ParseOptions(delimiter=sep),
-            convert_options=pacsv.ConvertOptions(include_columns=columns))
+            # strings_can_be_null: an empty field or NA in a text column is missing, as in a
+            # numeric column (and as pandas reads it), not a category named "" or "NA"
+            convert_options=pacsv.ConvertOptions(include_columns=columns,
+                                                  strings_can_be_null=True))
     except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
         # Type inferred from the first block broke later (numbers, then text): let pandas read
         # each column whole so that the non-numeric value can be reported.
@@ -379,7 +416,9 @@ def _numeric(series: pd.Series, name: str, source: str) -> np.ndarray:
     """A numeric or boolean column as float64 (NaN where missing); DataError otherwise."""
     if pd.api.types.is_bool_dtype(series.dtype):
         return series.astype("float64").to_numpy(dtype=np.float64, na_value=np.nan)
-    if pd.api.types.is_numeric_dtype(series.dtype):
+    if series.dtype == np.float64:
+        values = series.to_numpy()          # a view: no copy of a large column
+    elif pd.api.types.is_numeric_dtype(series.dtype):
         values = series.to_numpy(dtype=np.float64, na_value=np.nan)
     else:
         converted = pd.to_numeric(series, errors="coerce")
@@ -394,6 +433,8 @@ def _numeric(series: pd.Series, name: str, source: str) -> np.ndarray:
                 "the value, write a missing value as an empty field or NA, or, if the column "
                 f"holds categories, declare [variables].{name} = {{ kind = \"categorical\" }}")
         values = converted.to_numpy(dtype=np.float64, na_value=np.nan)
+    if np.isfinite(values).all():          # the common case: one pass, nothing missing
+        return values
     infinite = np.isinf(values)
     if infinite.any():
         position = int(np.flatnonzero(infinite)[0])
@@ -522,7 +563,7 @@ def design_from_frame(frame: pd.DataFrame, variables: Sequence[str], *,
             values = (_binary if kind == "binary" else _numeric)(series, name, source)
             numeric[name] = values
             absent = np.isnan(values)
-        count = int(absent.sum())
+        count = int(np.count_nonzero(absent))
         missing[name] = count
         if count:
             missing_mask |= absent
@@ -567,10 +608,7 @@ def design_from_frame(frame: pd.DataFrame, variables: Sequence[str], *,
             dummies.append(column)
             blocks.append((code == i).astype(np.float64))
         groups[name] = tuple(dummies)
-    values = np.empty((used, len(columns)), dtype=np.float64)
-    for j, block in enumerate(blocks):
-        values[:, j] = block
-    design = Design(columns=tuple(columns), values=values, groups=groups, rows=rows,
+    design = Design(columns=tuple(columns), data=tuple(blocks), groups=groups, rows=rows,
                     levels=final_levels)
     _check_design(design, study, source)
     return design
@@ -629,10 +667,16 @@ def moments_from_array(values: np.ndarray, columns: Sequence[str], *,
 
 
 def _chunk_moments(chunk: np.ndarray, columns: tuple[str, ...],
-                   groups: Mapping[str, tuple[str, ...]] | None) -> Moments:
+                   groups: Mapping[str, tuple[str, ...]] | None, *,
+                   scratch: bool = False) -> Moments:
+    """Moments of one chunk; ``scratch=True`` lets it centre the chunk in place."""
     n = chunk.shape[0]
     pilot = chunk.mean(axis=0)
-    centred = chunk - pilot
+    if scratch:
+        chunk -= pilot
+        centred = chunk
+    else:
+        centred = chunk - pilot
     # corrected two-pass: residual mean of the centred chunk, (almost) zero
     offset = centred.mean(axis=0)
     cross = centred.T @ centred - n * np.outer(offset, offset)
@@ -641,9 +685,43 @@ def _chunk_moments(chunk: np.ndarray, columns: tuple[str, ...],
                    groups=dict(groups or {}))
 
 
-def moments_from_design(design: Design) -> Moments:
-    """Moments of an encoded :class:`Design`."""
-    return moments_from_array(design.values, design.columns, groups=design.groups)
+def moments_from_design(design: Design, *, chunk_rows: int = _CHUNK_ROWS) -> Moments:
+    """Moments of an encoded :class:`Design` in one fused pass over its columns.
+
+    Each column is centred on its mean :math:`m` (numpy's pairwise sum, accurate to a few
+    ulps) while it is copied into a chunk buffer, the chunk's cross-products are added with a
+    symmetric rank-k update (BLAS ``dsyrk``), and the residual offset of the centred columns is
+    removed at the end (the corrected two-pass formula):
+
+    .. math:: C = \\sum_i (x_i - m)(x_i - m)^\\top - n\\,(\\bar x - m)(\\bar x - m)^\\top ,
+              \\qquad \\bar x = m + \\tfrac1n \\sum_i (x_i - m).
+    """
+    from scipy.linalg import blas
+
+    p, n = len(design.columns), design.n
+    if n == 0:
+        return Moments(n=0, columns=design.columns, means=np.zeros(p), cross=np.zeros((p, p)),
+                       groups=dict(design.groups))
+    pilot = np.array([column.mean() for column in design.data], dtype=np.float64)
+    buffer = np.empty((p, min(chunk_rows, n)), dtype=np.float64)
+    upper = np.zeros((p, p), dtype=np.float64, order="F")
+    sums = np.zeros(p)
+    for start in range(0, n, chunk_rows):
+        stop = min(start + chunk_rows, n)
+        width = stop - start
+        for j, column in enumerate(design.data):
+            np.subtract(column[start:stop], pilot[j], out=buffer[j, :width])
+        block = buffer[:, :width]
+        sums += block.sum(axis=1)
+        # upper triangle of C += (x - m)(x - m)'; block.T is Fortran-ordered (width, p)
+        upper = blas.dsyrk(1.0, block.T, beta=1.0, c=upper, trans=1, lower=0,
+                           overwrite_c=1)
+    cross = np.triu(upper) + np.triu(upper, 1).T
+    offset = sums / n
+    # corrected two-pass: remove the (tiny) residual mean of the centred columns
+    cross -= n * np.outer(offset, offset)
+    return Moments(n=n, columns=design.columns, means=pilot + offset, cross=cross,
+                   groups=dict(design.groups))
 
 
 def moments_from_frame(frame: pd.DataFrame, variables: Sequence[str], *,

@@ -45,7 +45,7 @@ from __future__ import annotations
 
 import math
 import warnings
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -53,7 +53,7 @@ import numpy as np
 import pandas as pd
 from scipy import linalg, stats
 
-from .errors import DataError, NumericsError
+from .errors import CausalCheckWarning, DataError, NumericsError
 from .moments import Design, Moments
 
 __all__ = [
@@ -66,6 +66,7 @@ __all__ = [
     "partial_r2",
     "residuals",
     "robust_std_error",
+    "robust_std_errors",
 ]
 
 # Condition number (of the correlation-scaled regressor matrix) above which the regressors are
@@ -76,7 +77,7 @@ COLLINEAR_CONDITION = 1e12
 WARN_CONDITION = 1e8
 
 
-class CollinearityWarning(UserWarning):
+class CollinearityWarning(CausalCheckWarning):
     """Regressors are nearly collinear: the slopes are solved but poorly determined."""
 
 
@@ -348,27 +349,40 @@ def partial_r2(fit: LinearFit, column: str) -> float:
     return float(t * t / (t * t + fit.dof))
 
 
-def _rows(source: Design | pd.DataFrame, columns: Sequence[str]) -> np.ndarray:
+def _row_chunks(source: Design | pd.DataFrame | np.ndarray, columns: Sequence[str],
+                chunk_rows: int) -> Iterator[np.ndarray]:
+    """The rows of ``columns`` in chunks of ``chunk_rows`` (a Design is never copied whole)."""
     if isinstance(source, Design):
-        return source.take(columns)
+        yield from source.chunks(columns, rows=chunk_rows)
+        return
     if isinstance(source, pd.DataFrame):
         missing = [c for c in columns if c not in source.columns]
         if missing:
             raise DataError(f"the frame lacks the design column(s) {missing}; pass the "
                             "encoded Design, or a frame with these columns")
-        return source[list(columns)].to_numpy(dtype=np.float64)
-    return np.asarray(source, dtype=np.float64)
+        values = source[list(columns)].to_numpy(dtype=np.float64)
+    else:
+        values = np.asarray(source, dtype=np.float64)
+    for start in range(0, values.shape[0], chunk_rows):
+        yield values[start:start + chunk_rows]
+
+
+def _row_count(source: Design | pd.DataFrame | np.ndarray) -> int:
+    return source.n if isinstance(source, Design) else len(source)
 
 
 def residuals(source: Design | pd.DataFrame, fit: LinearFit) -> np.ndarray:
     """Row residuals :math:`e_i = (y_i - \\bar y) - (x_i - \\bar x)^\\top\\hat\\beta`."""
-    values = _rows(source, (*fit.regressors, fit.outcome))
-    centred_x = values[:, :-1] - fit.regressor_means
-    return (values[:, -1] - fit.outcome_mean) - centred_x @ fit.coef
+    parts = []
+    for chunk in _row_chunks(source, (*fit.regressors, fit.outcome), 1 << 16):
+        centred_x = chunk[:, :-1] - fit.regressor_means
+        parts.append((chunk[:, -1] - fit.outcome_mean) - centred_x @ fit.coef)
+    return np.concatenate(parts) if parts else np.zeros(0)
 
 
 def robust_std_error(source: Design | pd.DataFrame, fit: LinearFit, *,
-                     chunk_rows: int = 1 << 16) -> np.ndarray:
+                     columns: Sequence[str] | None = None,
+                     chunk_rows: int = 1 << 17) -> np.ndarray:
     """HC1 heteroskedasticity-consistent standard errors of the slopes (one pass over rows).
 
     Parameters
@@ -376,11 +390,13 @@ def robust_std_error(source: Design | pd.DataFrame, fit: LinearFit, *,
     source : Design or DataFrame
         The rows the fit was computed from (a DataFrame must hold the design columns).
     fit : LinearFit
+    columns : sequence of str, optional
+        Only these regressors (default all); the pass costs :math:`O(n k)` per column asked.
 
     Returns
     -------
     ndarray
-        One HC1 standard error per regressor.
+        One HC1 standard error per regressor asked for, in that order.
 
     Notes
     -----
@@ -390,29 +406,91 @@ def robust_std_error(source: Design | pd.DataFrame, fit: LinearFit, *,
         C_{XX}^{-1} \\Big(\\sum_i e_i^2 \\tilde x_i \\tilde x_i^\\top\\Big) C_{XX}^{-1},
 
     with :math:`\\tilde x_i = x_i - \\bar x`; by Frisch–Waugh–Lovell this is the slope block of
-    the sandwich with an explicit intercept. It is accumulated as
-    :math:`\\sum_i e_i^2 w_i w_i^\\top` with :math:`w_i = C_{XX}^{-1}\\tilde x_i`, only its
-    diagonal being needed.
+    the sandwich with an explicit intercept. Only its diagonal is needed:
+    :math:`\\sum_i e_i^2 w_{ij}^2` with :math:`w_i = C_{XX}^{-1}\\tilde x_i`.
 
     References
     ----------
     MacKinnon, J. G. & White, H. (1985). Journal of Econometrics 29, 305–325 (HC1).
     """
     k = len(fit.regressors)
-    if k == 0:
+    wanted = list(range(k)) if columns is None else [fit._where(c) for c in columns]
+    if k == 0 or not wanted:
         return np.zeros(0)
-    values = _rows(source, (*fit.regressors, fit.outcome))
-    if values.shape[0] != fit.n:
-        raise ValueError(f"the rows ({values.shape[0]}) are not the rows of the fit ({fit.n})")
-    # C_XX^{-1} = cov_params / sigma^2
-    inverse = fit.cov_params / fit.sigma2
-    total = np.zeros(k)
-    for start in range(0, values.shape[0], chunk_rows):
-        chunk = values[start:start + chunk_rows]
-        centred_x = chunk[:, :-1] - fit.regressor_means
-        # e_i = (y_i - ybar) - (x_i - xbar)' beta
-        error = (chunk[:, -1] - fit.outcome_mean) - centred_x @ fit.coef
-        weights = centred_x @ inverse
-        total += (error * error) @ (weights * weights)
+    if _row_count(source) != fit.n:
+        raise ValueError(f"the rows ({_row_count(source)}) are not the rows of the fit "
+                         f"({fit.n})")
+    # rows of C_XX^{-1} = cov_params / sigma^2 for the wanted regressors
+    inverse = fit.cov_params[:, wanted] / fit.sigma2
+    # one product per chunk: [x~ y~] @ [[-beta, C^{-1}], [1, 0]] = [e, w]
+    weights = np.zeros((k + 1, 1 + len(wanted)))
+    weights[:k, 0] = -fit.coef
+    weights[k, 0] = 1.0
+    weights[:k, 1:] = inverse
+    centre = np.append(fit.regressor_means, fit.outcome_mean)
+    total = np.zeros(len(wanted))
+    for chunk in _row_chunks(source, (*fit.regressors, fit.outcome), chunk_rows):
+        centred = chunk - centre
+        product = centred @ weights
+        # e_i = (y_i - ybar) - (x_i - xbar)' beta ;  w_i = C_XX^{-1} (x_i - xbar)
+        error = product[:, 0]
+        total += (error * error) @ (product[:, 1:] ** 2)
     # HC1: scale the HC0 sandwich by n / (n - k - 1)
     return np.sqrt(total * fit.n / fit.dof)
+
+
+def robust_std_errors(source: Design | pd.DataFrame, fits: Sequence[LinearFit], column: str,
+                      *, chunk_rows: int = 1 << 17) -> list[float]:
+    """HC1 standard error of ``column`` in each of several fits, in a single pass over rows.
+
+    The fits must come from the same moments (same rows, same means). Each chunk of the union
+    of their columns is read and centred once; per fit, one product
+    :math:`[\\tilde x\\; \\tilde y]\\,[[-\\hat\\beta, C_{XX}^{-1}e_j], [1, 0]] = [e, w_j]` gives
+    the residuals and the weights, and the HC1 variance is
+    :math:`\\frac{n}{n-k-1}\\sum_i e_i^2 w_{ij}^2` as in :func:`robust_std_error`.
+
+    References
+    ----------
+    MacKinnon, J. G. & White, H. (1985). Journal of Econometrics 29, 305–325 (HC1).
+    """
+    if not fits:
+        return []
+    # the union of the columns, the widest fit's first so that its block is a plain slice
+    ordered = sorted(range(len(fits)), key=lambda i: -len(fits[i].regressors))
+    union: list[str] = []
+    centre: dict[str, float] = {}
+    for f in (fits[i] for i in ordered):
+        if f.n != fits[0].n:
+            raise ValueError("robust_std_errors: the fits use different rows")
+        for name, mean in (*zip(f.regressors, f.regressor_means), (f.outcome, f.outcome_mean)):
+            if name not in centre:
+                union.append(name)
+                centre[name] = float(mean)
+    if _row_count(source) != fits[0].n:
+        raise ValueError(f"the rows ({_row_count(source)}) are not the rows of the fits "
+                         f"({fits[0].n})")
+    plans = []
+    for f in fits:
+        j = f._where(column)
+        k = len(f.regressors)
+        index = [union.index(c) for c in (*f.regressors, f.outcome)]
+        block: slice | list[int] = slice(0, k + 1) if index == list(range(k + 1)) else index
+        weights = np.zeros((k + 1, 2))
+        weights[:k, 0] = -f.coef
+        weights[k, 0] = 1.0
+        # row j of C_XX^{-1} = cov_params / sigma^2
+        weights[:k, 1] = f.cov_params[:, j] / f.sigma2
+        plans.append((block, weights))
+    means = np.array([centre[c] for c in union])
+    totals = np.zeros(len(fits))
+    if isinstance(source, Design):
+        chunks = source.chunks(union, rows=chunk_rows, centre=means)
+    else:
+        chunks = (chunk - means for chunk in _row_chunks(source, union, chunk_rows))
+    for centred in chunks:
+        for i, (block, weights) in enumerate(plans):
+            # [x~ y~] @ [[-beta, C^{-1} e_j], [1, 0]] = [e, w_j]
+            product = centred[:, block] @ weights
+            # sum_i e_i^2 w_ij^2
+            totals[i] += float(np.dot(product[:, 0] ** 2, product[:, 1] ** 2))
+    return [float(np.sqrt(total * f.n / f.dof)) for total, f in zip(totals, fits)]

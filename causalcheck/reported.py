@@ -29,6 +29,7 @@ Examples
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field, fields, replace
 from decimal import Decimal, InvalidOperation
@@ -36,7 +37,7 @@ from typing import Any
 
 from scipy import stats
 
-from .errors import ReportedError, near_matches
+from .errors import DegenerateWarning, ReportedError, near_matches
 from .study import MEASURES, Reported
 
 __all__ = [
@@ -55,6 +56,14 @@ _SOURCE_WORDS = {"std_error": "standard error given", "ci": "interval", "t": "t 
 
 #: How each field is named in a study file; the CLI passes its own flag names.
 FIELD_NAMES: dict[str, str] = {f.name: f"[reported].{f.name}" for f in fields(Reported)}
+
+
+def _exp(value: float) -> float:
+    """``exp`` that gives infinity past the double range (an interval of infinite width)."""
+    try:
+        return math.exp(value)
+    except OverflowError:
+        return math.inf
 
 
 @dataclass(frozen=True)
@@ -100,7 +109,7 @@ class Summary:
         """The estimate on the scale the table printed it (a ratio for ratio measures)."""
         if self.original is not None:
             return self.original[0]
-        return math.exp(self.estimate) if self.is_ratio else self.estimate
+        return _exp(self.estimate) if self.is_ratio else self.estimate
 
     @property
     def reported_ci(self) -> tuple[float, float]:
@@ -108,7 +117,7 @@ class Summary:
         if self.original is not None and self.original[1] is not None:
             return self.original[1]
         if self.is_ratio:
-            return math.exp(self.ci_low), math.exp(self.ci_high)
+            return _exp(self.ci_low), _exp(self.ci_high)
         return self.ci_low, self.ci_high
 
     def to_dict(self) -> dict[str, Any]:
@@ -280,7 +289,15 @@ def _half_unit(value: float) -> float:
 
 def _critical(level: float, dof: float | None) -> float:
     upper = 1 - (1 - level) / 2
-    return float(stats.norm.ppf(upper) if dof is None else stats.t.ppf(upper, dof))
+    if dof is None:
+        return float(stats.norm.ppf(upper))
+    quantile = float(stats.t.ppf(upper, dof))
+    # below about 0.01 dof the true quantile passes the double range and scipy returns a
+    # wrong finite number; the round trip through the tail area shows it (then: infinite)
+    if dof < 1 and not math.isclose(2 * float(stats.t.sf(quantile, dof)), 1 - level,
+                                    rel_tol=1e-6):
+        return math.inf
+    return quantile
 
 
 def summarize(reported: Reported, *, names: Mapping[str, str] | None = None) -> Summary:
@@ -483,13 +500,23 @@ def summarize(reported: Reported, *, names: Mapping[str, str] | None = None) -> 
                      + (" on the log scale" if ratio else ""))
     else:
         assert p_given is not None
-        upper = 1 - p_given / 2
-        # |t| = F^{-1}(1 - p/2)
-        abs_t = float(stats.norm.ppf(upper) if dof is None else stats.t.ppf(upper, dof))
-        se, se_source = abs(est) / abs_t, "p_value"
+        # |t| = F^{-1}(1 - p/2), the two-sided quantile at level 1 - p
+        abs_t = _critical(1 - p_given, dof)
+        # a p-value within rounding of 1 gives |t| = 0: no SE (refused just below)
+        se, se_source = (abs(est) / abs_t if abs_t > 0 else math.inf), "p_value"
         notes.append(f"the standard error {se:.4g} comes from the two-sided p-value with the "
                      f"{'t' if dof is not None else 'normal'} distribution (|t| = {abs_t:.4f}); "
                      "a rounded p-value (such as 0.001 or p < 0.05) gives only a rough SE")
+    if not 0 < se < math.inf:
+        # a width, t or p-value at the edge of double precision (or an infinite quantile at a
+        # tiny dof) gives an SE of 0 or infinity, from which nothing can be bounded
+        why = (f" (at {dof:g} residual degrees of freedom the {level:.0%} t quantile is "
+               "infinite, so no width pins the SE down)" if se_source == "ci"
+               and not math.isfinite(q) else "")
+        raise ReportedError(_paragraph([
+            f"the standard error taken from {names[se_source]} is {se!r}, not a positive "
+            f"finite number{why}; give {names['std_error']} as printed in the table, or "
+            "check the numbers and their units"]))
     t = est / se
     p_value = float(2 * (stats.norm.sf(abs(t)) if dof is None else stats.t.sf(abs(t), dof)))
 
@@ -501,6 +528,14 @@ def summarize(reported: Reported, *, names: Mapping[str, str] | None = None) -> 
         low, high = ci_scaled
     else:
         low, high = est - q * se, est + q * se
+        if not (math.isfinite(low) and math.isfinite(high)):
+            why = (f"at {dof:g} residual degrees of freedom the {level:.0%} t quantile is "
+                   "infinite; check the dof" if not math.isfinite(q) else
+                   f"estimate ± {q:.3g} × SE passes the double range")
+            text = (f"the interval computed from the standard error has no finite limits "
+                    f"({why}); they are written as null")
+            notes.append(text)
+            warnings.warn(text, DegenerateWarning, stacklevel=2)
     if outcome_sd is not None and ratio:
         notes.append(f"{names['outcome_sd']} is only used for a difference; it is ignored for "
                      f"a {measure.replace('_', ' ')}")

@@ -143,7 +143,34 @@ def _core(estimate: Any, std_error: Any, dof: Any) -> tuple[float, float, float]
     if dof <= 1:
         raise NumericsError(f"dof (residual degrees of freedom) must be above 1 for the "
                             f"partial-R² bounds; got {dof!r}")
+    # every bound is a multiple of se·√dof: outside this range it under- or overflows doubles
+    scale = std_error * math.sqrt(dof)
+    if not _SCALE_RANGE[0] <= scale <= _SCALE_RANGE[1]:
+        raise NumericsError(f"std_error × √dof = {scale:.3g} (std_error {std_error!r}, dof "
+                            f"{dof!r}) is outside the range the bounds can be computed in "
+                            f"({_SCALE_RANGE[0]:g} to {_SCALE_RANGE[1]:g}); express the outcome "
+                            "in other units")
     return estimate, std_error, dof
+
+
+# se·√dof must stay inside this range, and the partial Cohen's f below its limit, for the
+# bounds (products of them with factors up to about 1e8) to stay finite and normal doubles
+_SCALE_RANGE = (1e-290, 1e290)
+_F_LIMIT = 1e150
+
+
+def _cohen_f(estimate: float, threshold: float, std_error: float, dof: float) -> float:
+    """Partial Cohen's f of the distance to the threshold, checked to be computable."""
+    # f_theta = |estimate - threshold| / (se sqrt(dof)); divided in steps so that no step
+    # underflows to zero (Python floats give inf, not an error, when a quotient overflows)
+    f = abs(estimate - threshold) / std_error / math.sqrt(dof)
+    if not f <= _F_LIMIT:
+        raise NumericsError(
+            f"the estimate {estimate!r} lies {f:.3g} standard errors (times 1/√dof) from the "
+            f"threshold {threshold!r}, beyond what double precision can bound (at most "
+            f"{_F_LIMIT:g}); no real table is that precise, so check the standard error's units "
+            "and the threshold")
+    return f
 
 
 def _alpha(alpha: Any) -> float:
@@ -195,7 +222,12 @@ def critical_t(alpha: float, dof: float | None) -> float:
     alpha = _alpha(alpha)
     if dof is None or math.isinf(dof):
         return float(stats.norm.ppf(1 - alpha / 2))
-    return float(stats.t.ppf(1 - alpha / 2, dof))
+    quantile = float(stats.t.ppf(1 - alpha / 2, dof))
+    # below about 0.01 dof the true quantile passes the double range and scipy's answer is a
+    # finite number that is wrong; the round trip through the tail area shows it
+    if dof < 1 and not math.isclose(2 * float(stats.t.sf(quantile, dof)), alpha, rel_tol=1e-6):
+        return math.inf
+    return quantile
 
 
 # --------------------------------------------------------------------------------------------
@@ -226,8 +258,11 @@ def partial_r2_from_t(t: ArrayLike, dof: ArrayLike) -> np.ndarray | float:
     """
     t = np.asarray(t, dtype=float)
     dof = np.asarray(dof, dtype=float)
-    # R^2_{Y~D|X} = t^2 / (t^2 + dof)
-    result = t**2 / (t**2 + dof)
+    with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+        # R^2_{Y~D|X} = t^2 / (t^2 + dof) = 1 / (1 + (sqrt(dof)/t)^2), the second form where
+        # t^2 would overflow
+        result = np.where(np.abs(t) > 1e100, 1 / (1 + (np.sqrt(dof) / t) ** 2),
+                          t**2 / (t**2 + dof))
     return float(result) if result.ndim == 0 else result
 
 
@@ -430,15 +465,18 @@ def bounds(estimate: float, std_error: float, dof: float, r2dz: ArrayLike, r2yz:
     # the side of the threshold the estimate is on; "toward" moves it to the other side
     side = 1.0 if estimate >= threshold else -1.0
     adjusted = estimate + sign * side * bias
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         t = adjusted / se_adj
     critical = critical_t(alpha, dof - 1)
-    # CI = adjusted ± t*_{dof-1} se_adj
+    # CI = adjusted ± t*_{dof-1} se_adj (of infinite width when dof - 1 is tiny; nan where
+    # an infinite quantile meets a zero SE, at r2yz = 1)
+    with np.errstate(over="ignore", invalid="ignore"):
+        half_width = critical * se_adj
     return Bounds(
         estimate=estimate, std_error=std_error, dof=dof - 1, threshold=threshold, alpha=alpha,
         direction=direction, r2dz=r2dz_a, r2yz=r2yz_a, bias=bias, adjusted_estimate=adjusted,
-        adjusted_std_error=se_adj, t=t, ci_low=adjusted - critical * se_adj,
-        ci_high=adjusted + critical * se_adj)
+        adjusted_std_error=se_adj, t=t, ci_low=adjusted - half_width,
+        ci_high=adjusted + half_width)
 
 
 @dataclass(frozen=True, eq=False)
@@ -463,9 +501,10 @@ class BoundGrid:
         """
         b = self.bounds
         dof = b.dof + 1
-        with np.errstate(divide="ignore", invalid="ignore"):
-            needed = ((b.estimate - b.threshold) ** 2 * (1 - self.r2dz)
-                      / (b.std_error**2 * dof * self.r2dz))
+        # f^2 = (estimate - threshold)^2 / (se^2 dof), formed from f so se^2 cannot underflow
+        f = np.float64(abs(b.estimate - b.threshold) / b.std_error / math.sqrt(dof))
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            needed = f**2 * (1 - self.r2dz) / self.r2dz
         return np.where((needed <= 1) & (self.r2dz > 0), needed, np.nan)
 
     def to_dict(self) -> dict[str, Any]:
@@ -616,7 +655,7 @@ def robustness_values(estimate: float, std_error: float, dof: float, *,
     alpha = _alpha(alpha)
     t = estimate / std_error
     # f_theta = |estimate - threshold| / (se sqrt(dof))
-    f = abs(estimate - threshold) / (std_error * math.sqrt(dof))
+    f = _cohen_f(estimate, threshold, std_error, dof)
     point = float(_rv_from_f(np.asarray(f)))
     # f* = t*_{1-alpha/2, dof-1} / sqrt(dof - 1)
     critical_f = critical_t(alpha, dof - 1) / math.sqrt(dof - 1)
@@ -629,6 +668,8 @@ def robustness_values(estimate: float, std_error: float, dof: float, *,
         # interior optimum: r2yz = r / (r + f*^2) < r
         ci = (f**2 - critical_f**2) / (1 + f**2)
         ci_r2yz = ci / (ci + critical_f**2)
+    # RV_alpha <= RV holds exactly; at f near 1e8 the two formulas round to either side of 1
+    ci = min(ci, point)
     return RobustnessValues(
         estimate=estimate, std_error=std_error, dof=dof, threshold=threshold, alpha=alpha,
         t=t, partial_r2=float(partial_r2_from_t(t, dof)), f=f, critical_f=critical_f,
@@ -681,7 +722,8 @@ def extreme_bound(estimate: float, std_error: float, dof: float,
     values = _r2("r2dz", r2dz, allow_one=False)
     side = 1.0 if estimate >= threshold else -1.0
     adjusted = estimate + sign * side * np.asarray(bias_bound(std_error, dof, 1.0, values))
-    f2 = (estimate - threshold) ** 2 / (std_error**2 * dof)
+    # f^2 = (estimate - threshold)^2 / (se^2 dof), from f so that se^2 cannot underflow
+    f2 = _cohen_f(estimate, threshold, std_error, dof) ** 2
     return ExtremeBound(estimate=estimate, threshold=threshold, r2dz=values,
                         adjusted_estimate=adjusted, r2dz_to_threshold=f2 / (1 + f2))
 
@@ -992,9 +1034,10 @@ def risk_ratio_e_value(risk_ratio: ArrayLike) -> np.ndarray | float:
     if not np.all(np.isfinite(rr) & (rr > 0)):
         raise NumericsError(f"a risk ratio must be a positive finite number; got "
                             f"{risk_ratio!r}")
-    rr = np.where(rr < 1, 1 / rr, rr)
-    # E = RR + sqrt(RR (RR - 1))
-    e = rr + np.sqrt(rr * (rr - 1))
+    with np.errstate(over="ignore"):
+        rr = np.where(rr < 1, 1 / rr, rr)
+        # E = RR + sqrt(RR (RR - 1)), the root taken factor by factor so RR^2 cannot overflow
+        e = rr + np.sqrt(rr) * np.sqrt(rr - 1)
     return float(e) if e.ndim == 0 else e
 
 
@@ -1010,7 +1053,8 @@ def smd_to_risk_ratio(d: ArrayLike) -> np.ndarray | float:
     1.5762
     """
     d = np.asarray(d, dtype=float)
-    result = np.exp(0.91 * d)
+    with np.errstate(over="ignore"):
+        result = np.exp(0.91 * d)       # inf past the double range: the limit, not an error
     return float(result) if result.ndim == 0 else result
 
 
@@ -1050,7 +1094,7 @@ def to_risk_ratio(value: ArrayLike, measure: str, *, outcome_common: bool = Fals
         result = np.sqrt(ratio)
     else:
         # RR ~ (1 - 0.5^sqrt(HR)) / (1 - 0.5^sqrt(1/HR)) for a common outcome; limit 1 at HR=1
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             result = (1 - 0.5 ** np.sqrt(ratio)) / (1 - 0.5 ** np.sqrt(1 / ratio))
         result = np.where(ratio == 1, 1.0, result)
     return float(result) if np.ndim(result) == 0 else result
@@ -1151,11 +1195,21 @@ def e_value(estimate: float, *, ci: tuple[float, float] | None = None,
         rr_ci = None if ci is None else (float(smd_to_risk_ratio(ci[0] / outcome_sd)),
                                          float(smd_to_risk_ratio(ci[1] / outcome_sd)))
         rr_null = float(smd_to_risk_ratio(base / outcome_sd))
+        for name, value in (("estimate", rr), ("null", rr_null)):
+            if not 0 < value < math.inf:
+                raise NumericsError(
+                    f"the standardised difference of the {name}, d = {name} / outcome_sd = "
+                    f"{(estimate if name == 'estimate' else base) / outcome_sd:.3g}, is too "
+                    "large for RR = exp(0.91 d) in double precision; check outcome_sd and the "
+                    "units of the estimate")
         conversion = "standardised mean difference d = difference / outcome SD, RR = exp(0.91 d)"
     elif measure in RATIO_MEASURES:
         rr = float(to_risk_ratio(estimate, measure, outcome_common=outcome_common))
+        # an interval of infinite width (tiny dof) has limits 0 and inf, which every
+        # conversion maps to themselves
         rr_ci = None if ci is None else tuple(
-            float(to_risk_ratio(c, measure, outcome_common=outcome_common)) for c in ci)
+            float(c) if c in (0.0, math.inf)
+            else float(to_risk_ratio(c, measure, outcome_common=outcome_common)) for c in ci)
         base = 1.0 if null is None else _finite("null", null)
         rr_null = float(to_risk_ratio(base, measure, outcome_common=outcome_common))
         conversion = _CONVERSIONS[(measure, bool(outcome_common))]
@@ -1164,7 +1218,14 @@ def e_value(estimate: float, *, ci: tuple[float, float] | None = None,
                             f"{', '.join(map(repr, RATIO_MEASURES))}; got {measure!r}")
     if rr_ci is not None and not rr_ci[0] <= rr_ci[1]:
         raise NumericsError(f"the confidence interval must be (low, high); got {ci!r}")
+    if not (0 < rr_null < math.inf and 0 < rr / rr_null < math.inf):
+        raise NumericsError(f"the risk ratio {rr:.3g} against the null {rr_null:.3g} is too "
+                            "far from 1 for an E-value in double precision; check the number")
     point = float(risk_ratio_e_value(rr / rr_null))
+    if not math.isfinite(point):
+        raise NumericsError(f"the E-value of a risk ratio of {rr / rr_null:.3g} passes the "
+                            "double range; a ratio this far from 1 cannot come from a study, "
+                            "so check the number")
     ci_e: float | None = None
     if rr_ci is not None:
         low, high = rr_ci

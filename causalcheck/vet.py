@@ -26,6 +26,7 @@ from __future__ import annotations
 import csv
 import io
 import math
+import warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -33,7 +34,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import OutputError, ReportedError
+from .errors import DegenerateWarning, NumericsError, OutputError, ReportedError
 from .report.files import write_atomic
 from .reported import FIELD_NAMES, Summary, summarize
 from .sensitivity import (
@@ -156,10 +157,16 @@ class VetResult:
         return out
 
 
+def _degenerate(notes: list[str], text: str) -> None:
+    """A note in the result and, for the caller, a :class:`DegenerateWarning` saying the same."""
+    notes.append(text)
+    warnings.warn(text, DegenerateWarning, stacklevel=3)
+
+
 def _reported_names(study: Study | None, overridden: Sequence[str],
                     names: Mapping[str, str] | None) -> dict[str, str]:
-    where = f" in {study.source}" if study is not None and study.path is not None else ""
-    out = {k: f"{v}{where}" for k, v in FIELD_NAMES.items()}
+    # the file is named once, at the head of an error (see vet), not beside every field
+    out = dict(FIELD_NAMES)
     for key in overridden:
         if names and key in names:
             out[key] = names[key]
@@ -214,7 +221,12 @@ def vet(source: Study | Reported | Summary, *, threshold: float | None = None,
     else:
         reported = study.reported if study is not None else source
         assert isinstance(reported, Reported)
-        summary = summarize(reported, names=_reported_names(study, overridden, names))
+        try:
+            summary = summarize(reported, names=_reported_names(study, overridden, names))
+        except ReportedError as error:
+            if study is None or study.path is None:
+                raise
+            raise ReportedError(f"study file {study.source!r}: {error}") from None
     label = (lambda key, default: (names or {}).get(key, default))
     if alpha is None:
         alpha = study.alpha if study is not None else 0.05
@@ -253,16 +265,30 @@ def vet(source: Study | Reported | Summary, *, threshold: float | None = None,
         notes.append("robustness values need the residual degrees of freedom; give dof, or n "
                      "with covariates (dof = n - covariates - 2)")
     elif summary.dof <= 1:
-        notes.append(f"the residual degrees of freedom ({summary.dof:g}) are too few for the "
-                     "partial-R² bounds, which need more than 1")
+        _degenerate(notes, f"the residual degrees of freedom ({summary.dof:.8g}) are too few "
+                    "for the partial-R² bounds, which need more than 1, so the robustness "
+                    "values are null")
     else:
-        robustness = robustness_values(summary.estimate, summary.std_error, summary.dof,
-                                       threshold=analysis_threshold, alpha=alpha)
-        strengths = np.asarray(SWEEP_STRENGTHS)
-        sweep = bounds(summary.estimate, summary.std_error, summary.dof, strengths, strengths,
-                       threshold=analysis_threshold, alpha=alpha)
-        extreme = extreme_bound(summary.estimate, summary.std_error, summary.dof,
-                                EXTREME_STRENGTHS, threshold=analysis_threshold)
+        try:
+            robustness = robustness_values(summary.estimate, summary.std_error, summary.dof,
+                                           threshold=analysis_threshold, alpha=alpha)
+            strengths = np.asarray(SWEEP_STRENGTHS)
+            sweep = bounds(summary.estimate, summary.std_error, summary.dof, strengths,
+                           strengths, threshold=analysis_threshold, alpha=alpha)
+            extreme = extreme_bound(summary.estimate, summary.std_error, summary.dof,
+                                    EXTREME_STRENGTHS, threshold=analysis_threshold)
+        except NumericsError as error:
+            raise ReportedError(f"the reported numbers cannot be bounded: {error}") from None
+        if not math.isfinite(robustness.critical_f):
+            _degenerate(notes, f"with {summary.dof:.8g} residual degrees of freedom the "
+                        "intervals of the adjusted estimates (at dof - 1) have no finite "
+                        "limits, so the robustness value of the interval is 0 and the limits "
+                        "are null")
+        if robustness.f == 0:
+            _degenerate(notes, "the estimate equals the threshold (t = 0 measured from it): "
+                        "both robustness values are 0, and the direction in which a hidden "
+                        "confounder would move it is undefined (the tables show a bias that "
+                        "lowers it)")
 
     ev = None
     ci = summary.reported_ci

@@ -15,6 +15,7 @@ from causalcheck.regress import (
     partial_r2,
     residuals,
     robust_std_error,
+    robust_std_errors,
 )
 from causalcheck.study import parse_study
 
@@ -181,3 +182,17 @@ def test_error_fewer_rows_than_parameters_in_fit():
     moments = moments_from_array(rng.normal(size=(3, 3)), ["a", "b", "y"])
     with pytest.raises(DataError, match=r"needs more than 3 rows .* only 3 are used"):
         fit(moments, "y", ["a", "b"])
+
+
+def test_robust_std_errors_of_several_fits_in_one_pass():
+    frame = _synthetic(seed=3)
+    design = design_from_frame(frame, ["t", "y", "z1", "z2", "group"], study=STUDY)
+    moments = moments_from_design(design)
+    fits = [fit(moments, "y", ["t"]), fit(moments, "y", ["t", "z1", "group"])]
+    together = robust_std_errors(design, fits, "t", chunk_rows=97)
+    for result, value in zip(fits, together):
+        columns = list(result.regressors)
+        exog = sm.add_constant(design.take(columns))
+        # reference: statsmodels OLS with cov_type="HC1" on the same rows
+        reference = sm.OLS(design.column("y"), exog).fit(cov_type="HC1")
+        assert value == pytest.approx(reference.bse[1 + columns.index("t")], rel=1e-8)
