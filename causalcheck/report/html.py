@@ -56,6 +56,8 @@ h2 { font-size: 1.15rem; margin: 2.2rem 0 .6rem; padding-top: .4rem;
 #verdict p { margin: 0 0 .5rem; font-size: 1.04rem; }
 #verdict p:last-child { margin-bottom: 0; }
 #verdict p.lead { font-style: italic; }
+#verdict ul.findings { margin: 0 0 .5rem; padding-left: 1.2rem; font-size: 1.04rem; }
+#verdict ul.findings li { margin-bottom: .25rem; }
 #verdict p.next { font-weight: 700; }
 blockquote p { margin: 0; }
 nav { font-size: .8rem; color: var(--soft); margin: .3rem 0 0; }
@@ -159,7 +161,9 @@ def render_report_html(report: Report, images: Mapping[str, bytes]) -> str:
     if verdict.lead:
         parts.append(f'<p class="lead">{_e(verdict.lead)}</p>')
     if verdict.findings:
-        parts.append(f"<p>{_e(' '.join(verdict.findings))}</p>")
+        # one finding a bullet: a reader scans the verdict before reading it
+        items = "".join(f"<li>{_e(sentence)}</li>" for sentence in verdict.findings)
+        parts.append(f'<ul class="findings">{items}</ul>')
     if verdict.next_step:
         parts.append(f'<p class="next">{_e(verdict.next_step)}</p>')
     parts.append("</section>")

@@ -64,7 +64,7 @@ def render_report_markdown(report: Report) -> str:
     if verdict.lead:
         lines += [f"*{escape_markdown(verdict.lead)}*", ""]
     if verdict.findings:
-        lines += [escape_markdown(" ".join(verdict.findings)), ""]
+        lines += [f"- {escape_markdown(sentence)}" for sentence in verdict.findings] + [""]
     if verdict.next_step:
         lines += [f"**{escape_markdown(verdict.next_step)}**", ""]
     for section in report.sections:
