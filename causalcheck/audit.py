@@ -33,6 +33,7 @@ from __future__ import annotations
 
 import warnings
 from collections.abc import Callable, Mapping, Sequence
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -45,7 +46,7 @@ from .engines import compute_moments
 from .errors import CausalCheckError, NumericsError, Problem, StudyFileError
 from .graph import identify
 from .implications import ImplicationTest, check_implications
-from .moments import EmptyLevelWarning, Moments, RowCount
+from .moments import Moments, RowCount
 from .regress import LinearFit, fit
 from .study import Study, load_study
 
@@ -230,12 +231,14 @@ class RowSource:
 
     ``robust(fits, column)`` returns the HC1 standard error of ``column`` in each fit, in one
     pass over the rows. An engine that streams a file or runs on a cluster provides the same
-    three things.
+    three things. ``close()`` releases what the engine holds (a temporary copy of the rows)
+    when the audit stops before that pass.
     """
 
     moments: Moments
     rows: RowCount
     robust: Callable[[Sequence[LinearFit], str], list[float]]
+    close: Callable[[], None] = lambda: None
 
 
 def collect_rows(study: Study, data: Any, columns: Sequence[str],
@@ -252,11 +255,7 @@ def collect_rows(study: Study, data: Any, columns: Sequence[str],
         warnings.simplefilter("always")
         loaded = compute_moments(study, data, engine=engine, quiet=quiet, variables=columns)
     for warning in caught:
-        if not issubclass(warning.category, EmptyLevelWarning) and \
-                not warning.category.__module__.startswith("causalcheck"):
-            warnings.warn_explicit(warning.message, warning.category, warning.filename,
-                                   warning.lineno)
-        elif notes is not None:
+        if notes is not None:
             notes(str(warning.message))
     if notes is not None:
         for note in loaded.notes:
@@ -271,7 +270,8 @@ def collect_rows(study: Study, data: Any, columns: Sequence[str],
         finally:
             rows_source.close()
 
-    return RowSource(moments=loaded.moments, rows=loaded.rows, robust=robust)
+    return RowSource(moments=loaded.moments, rows=loaded.rows, robust=robust,
+                     close=rows_source.close)
 
 
 def _measured_columns(study: Study) -> list[str]:
@@ -363,14 +363,27 @@ def audit(study_or_path: Study | str | Path, data: pd.DataFrame | str | Path | N
     """
     study = _as_study(study_or_path)
     _check_study(study)
-    identification = identify(study)
     treatment, outcome = str(study.treatment), str(study.outcome)
     alpha = study.alpha
     notes = _Notes()
 
     columns = _measured_columns(study)
-    source_rows = collect_rows(study, data, columns, notes=notes.add, engine=engine,
-                               quiet=quiet)
+    # The graph work (pure Python) runs in a thread while the rows are read and reduced
+    # (pyarrow and numpy release the GIL), so it costs no wall time beyond the data pass.
+    # A graph error is still reported before a data error.
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="causalcheck-graph") as pool:
+        graph_job = pool.submit(identify, study)
+        try:
+            source_rows = collect_rows(study, data, columns, notes=notes.add, engine=engine,
+                                       quiet=quiet)
+        except CausalCheckError:
+            graph_job.result()
+            raise
+        try:
+            identification = graph_job.result()
+        except BaseException:
+            source_rows.close()
+            raise
     moments, rows = source_rows.moments, source_rows.rows
     if rows.dropped_missing:
         worst = sorted(((v, k) for k, v in rows.missing.items() if v), reverse=True)[:3]
@@ -443,10 +456,16 @@ def audit(study_or_path: Study | str | Path, data: pd.DataFrame | str | Path | N
                 headline_key, reason = tuple(minimal), "minimal"
                 break
     if headline_key is None and identification.identifiable:
-        problems = [s.note for s in by_set if s.valid and s.note]
+        # one reason a line, with the sets it stops (the same reason often stops several)
+        grouped: dict[str, list[str]] = {}
+        for s in by_set:
+            if s.valid and s.note:
+                why = s.note.removeprefix("not estimable: ")
+                grouped.setdefault(why, []).append(_set_text(s.set))
         raise NumericsError(
             "no valid adjustment set could be estimated from the data: "
-            + "; ".join(p for p in problems if p))
+            + "; ".join(f"adjusting for {' or '.join(sets)}: {why}"
+                        for why, sets in grouped.items()))
     if headline_key is None and best_available is not None and best_available in fits:
         headline_key, reason = best_available, "best_available"
     if not identification.identifiable:

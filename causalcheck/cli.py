@@ -11,13 +11,13 @@ from __future__ import annotations
 import argparse
 import sys
 import warnings
-from typing import Sequence
+from collections.abc import Sequence
 
 from . import __version__
 from .commands import COMMAND_MODULES
 from .errors import CausalCheckError, CausalCheckWarning
 
-__all__ = ["main", "build_parser"]
+__all__ = ["build_parser", "main"]
 
 EXIT_CODES = """exit codes:
   0  the check ran (and every gate passed)
@@ -76,7 +76,7 @@ def _run(args: argparse.Namespace) -> int:
         warnings.simplefilter("always", CausalCheckWarning)
         original = warnings.showwarning
 
-        def show(message, category, filename, lineno, file=None, line=None):  # noqa: ANN001
+        def show(message, category, filename, lineno, file=None, line=None):
             if not issubclass(category, CausalCheckWarning):
                 return original(message, category, filename, lineno, file, line)
             if str(message) not in shown:

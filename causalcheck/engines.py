@@ -108,6 +108,7 @@ __all__ = [
     "CSV_NULL_VALUES",
     "ENGINES",
     "READERS",
+    "SPILL",
     "DaskRows",
     "EngineChoice",
     "FileRows",
@@ -127,6 +128,9 @@ AUTO_STREAM_BYTES = 200 * 1024 * 1024
 BATCH_BYTES = 64 * 1024 * 1024
 # the reader used by the stream engine for each format (measured: docs/performance.md)
 READERS = {"csv": "duckdb", "parquet": "pyarrow"}
+# keep the encoded rows in a temporary file for the robust-SE pass, rather than read the file
+# again (measured: docs/performance.md); only when the temporary folder has room for it
+SPILL = {"csv": True, "parquet": False}
 # the texts read as missing in a CSV file: pyarrow's defaults, which the in-memory reader uses
 CSV_NULL_VALUES = ("", "#N/A", "#N/A N/A", "#NA", "-1.#IND", "-1.#QNAN", "-NaN", "-nan",
                    "1.#IND", "1.#QNAN", "N/A", "NA", "NULL", "NaN", "n/a", "nan", "null")
@@ -649,14 +653,17 @@ def _sql_text(text: str) -> str:
 def _iter_file_batches(path: Path, kind: str, columns: Sequence[str],
                        types: Mapping[str, Any], batch_rows: int, reader: str,
                        bytes_per_row: float) -> Iterator[Any]:
-    """Arrow record batches of ``columns`` typed as ``types``."""
+    """Lists of consecutive Arrow record batches of ``columns`` typed as ``types``, about
+    ``batch_rows`` rows a list."""
     import pyarrow as pa
 
     if reader == "duckdb":
         import duckdb
 
+        # no progress bar: DuckDB draws its own on stdout, which carries the JSON output
         connection = duckdb.connect()
         try:
+            connection.execute("SET enable_progress_bar = false")
             if kind == "csv":
                 type_spec = "{" + ", ".join(f"{_sql_text(c)}: {_sql_text(_duckdb_type(types[c]))}"
                                             for c in columns) + "}"
@@ -668,10 +675,19 @@ def _iter_file_batches(path: Path, kind: str, columns: Sequence[str],
                 relation = f"read_parquet({_sql_text(str(path))})"
             query = f"SELECT {', '.join(_sql_name(c) for c in columns)} FROM {relation}"
             stream = connection.sql(query).to_arrow_reader(batch_rows)
+            # DuckDB hands out batches of a few ten thousand rows: gather them to batch_rows
+            gathered: list[Any] = []
+            count = 0
             for batch in stream:
                 if kind == "parquet":
                     batch = batch.cast(pa.schema([(c, types[c]) for c in columns]))
-                yield batch
+                gathered.append(batch)
+                count += batch.num_rows
+                if count >= batch_rows:
+                    yield gathered
+                    gathered, count = [], 0
+            if gathered:
+                yield gathered
         finally:
             connection.close()
         return
@@ -687,7 +703,7 @@ def _iter_file_batches(path: Path, kind: str, columns: Sequence[str],
                 include_columns=list(columns), column_types=dict(types),
                 strings_can_be_null=True))
         for batch in stream:
-            yield batch
+            yield [batch]
         return
     import pyarrow.parquet as pq
 
@@ -697,19 +713,26 @@ def _iter_file_batches(path: Path, kind: str, columns: Sequence[str],
     try:
         for batch in handle.iter_batches(batch_size=batch_rows, columns=list(columns),
                                          use_threads=True):
-            yield batch.cast(pa.schema([(c, types[c]) for c in columns]))
+            yield [batch.cast(pa.schema([(c, types[c]) for c in columns]))]
     finally:
         handle.close()
 
 
-def _arrow_frame(batch: Any, variables: Sequence[tuple[str, str]]) -> dict[str, Any]:
-    """An Arrow batch as the columns the kernel reads: float arrays, Series or coded values."""
+def _arrow_frame(batches: Sequence[Any],
+                 variables: Sequence[tuple[str, str]]) -> dict[str, Any]:
+    """Arrow batches (consecutive) as the columns the kernel reads: float arrays (in pieces
+    when there are several batches), Series or coded values."""
     import pyarrow as pa
     import pyarrow.compute as pc
 
     frame: dict[str, Any] = {}
     for name, kind in variables:
-        column = batch.column(name)
+        pieces = [b.column(name) for b in batches]
+        if kind != "categorical" and pa.types.is_floating(pieces[0].type):
+            arrays = [p.to_numpy(zero_copy_only=False) for p in pieces]
+            frame[name] = arrays[0] if len(arrays) == 1 else kernel.Pieces(arrays)
+            continue
+        column = pieces[0] if len(pieces) == 1 else pa.chunked_array(pieces).combine_chunks()
         if kind == "categorical":
             encoded = column if pa.types.is_dictionary(column.type) else pc.dictionary_encode(
                 column)
@@ -720,8 +743,6 @@ def _arrow_frame(batch: Any, variables: Sequence[tuple[str, str]]) -> dict[str, 
                 if key is None or (isinstance(key, float) and math.isnan(key)):
                     codes[codes == i] = -1          # a NaN value is missing, as in memory
             frame[name] = kernel.Coded(codes, keys)
-        elif pa.types.is_floating(column.type):
-            frame[name] = column.to_numpy(zero_copy_only=False)
         elif pa.types.is_boolean(column.type):
             frame[name] = pc.cast(column, pa.float64()).to_numpy(zero_copy_only=False)
         else:
@@ -1074,7 +1095,7 @@ class FileRows(_BatchEngine):
         index = 0
         while True:
             try:
-                batch = next(batches)
+                batch = next(batches)              # a list of consecutive record batches
             except StopIteration:
                 return
             except (pa.ArrowInvalid, pa.ArrowNotImplementedError, OSError, RuntimeError,
@@ -1088,10 +1109,11 @@ class FileRows(_BatchEngine):
                     raise _read_error(error, path=self.path, source=self.source, done=done,
                                       header=self.header, var_kinds=kinds) from None
                 raise
-            if batch.num_rows == 0:
+            rows = sum(b.num_rows for b in batch)
+            if rows == 0:
                 continue
             yield index, _arrow_frame(batch, variables)
-            done += batch.num_rows
+            done += rows
             index += 1
 
 
@@ -1354,7 +1376,7 @@ def compute_moments(study: Study | None, data: Any = None, *, engine: str | None
             _kind_of_file(path)
             _check_columns(file_columns(path), variables, f"data file {str(path)!r}")
             rows_source = FileRows(path, study=study, variables=kinds, batch_rows=size)
-            spill = rows_source.kind == "csv" and _spill_ok(
+            spill = SPILL[rows_source.kind] and _spill_ok(
                 rows_source.rows_estimate(), len(replay or variables))
         try:
             plan = rows_source.first_pass(quiet=quiet, replay=replay, spill=spill)

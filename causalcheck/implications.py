@@ -124,6 +124,11 @@ def _partial_covariance(moments: Moments, columns: Sequence[str],
     """Covariance of ``columns`` after regressing out ``given``: Σ_AA − Σ_AS Σ_SS⁻¹ Σ_SA."""
     ia = [moments.index(c) for c in columns]
     cov = moments.covariance()
+    used = [*columns, *given]
+    beyond = [c for c in used if not np.isfinite(cov[moments.index(c), moments.index(c)])]
+    if beyond:
+        raise NumericsError(f"the column(s) {beyond} hold values too large to square in double "
+                            "precision; the implied independence cannot be tested")
     saa = cov[np.ix_(ia, ia)]
     if not given:
         return saa

@@ -47,6 +47,8 @@ Examples
 
 from __future__ import annotations
 
+import math
+import re
 import warnings
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
@@ -375,6 +377,30 @@ def read_frame(spec: DataSpec | str | Path, columns: Sequence[str]) -> pd.DataFr
                         "that format") from None
 
 
+def _ragged_message(path: Path, sep: str) -> str:
+    """Which line of a CSV file has a different number of fields from its header."""
+    import csv
+
+    if any(s.lower() in _COMPRESSION for s in path.suffixes):
+        return (f"data file {str(path)!r}: a row has a different number of fields from the "
+                "header. A decimal comma (1,5 for 1.5) or an unquoted comma inside a text value "
+                "splits a field; write decimals with a point, put text that holds the "
+                "separator in double quotes, or fill in the missing fields")
+    with path.open(encoding="utf-8", errors="replace", newline="") as handle:
+        rows = csv.reader(handle, delimiter=sep)
+        header = next(rows, [])
+        for row in rows:
+            if row and len(row) != len(header):
+                where = (f"line {rows.line_num} has {len(row)} fields where the header has "
+                         f"{len(header)} ({sep.join(row)[:80]!r})")
+                break
+        else:
+            where = "a row has a different number of fields from the header"
+    return (f"data file {str(path)!r}: {where}. A decimal comma (1,5 for 1.5) or an unquoted "
+            "comma inside a text value splits a field; write decimals with a point, put text "
+            "that holds the separator in double quotes, or fill in the missing fields")
+
+
 def _read_csv(path: Path, columns: list[str]) -> pd.DataFrame:
     import pyarrow as pa
     import pyarrow.csv as pacsv
@@ -387,10 +413,17 @@ def _read_csv(path: Path, columns: list[str]) -> pd.DataFrame:
             # numeric column (and as pandas reads it), not a category named "" or "NA"
             convert_options=pacsv.ConvertOptions(include_columns=columns,
                                                   strings_can_be_null=True))
-    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError) as error:
+        ragged = re.search(r"Expected (\d+) columns, got (\d+)", str(error))
+        if ragged:
+            raise DataError(_ragged_message(path, sep)) from None
         # Type inferred from the first block broke later (numbers, then text): let pandas read
-        # each column whole so that the non-numeric value can be reported.
-        return pd.read_csv(path, usecols=columns, sep=sep, low_memory=False)
+        # each column whole so that the non-numeric value can be reported. Every column is
+        # read: with usecols pandas silently drops the extra fields of a ragged row.
+        try:
+            return pd.read_csv(path, sep=sep, low_memory=False)[columns]
+        except pd.errors.ParserError:
+            raise DataError(_ragged_message(path, sep)) from None
     undecodable = [f.name for f in table.schema if pa.types.is_binary(f.type)]
     if undecodable:
         raise DataError(f"data file {str(path)!r} is not UTF-8 text (column "
@@ -412,16 +445,38 @@ def _row_text(position: int) -> str:
     return f"data row {position + 1} (header not counted)"
 
 
+def _parse_float(value: object) -> float:
+    """``float(value)`` for a text or number cell; NaN when it is not a number."""
+    try:
+        return float(value)  # type: ignore[arg-type]
+    except OverflowError:                 # a Python int beyond the double range
+        return math.inf if value > 0 else -math.inf  # type: ignore[operator]
+    except (TypeError, ValueError):
+        return math.nan
+
+
 def _numeric(series: pd.Series, name: str, source: str) -> np.ndarray:
     """A numeric or boolean column as float64 (NaN where missing); DataError otherwise."""
+    return _numeric_checked(series, name, source)[0]
+
+
+def _numeric_checked(series: pd.Series, name: str, source: str) -> tuple[np.ndarray, bool]:
+    """:func:`_numeric` and whether every value is finite (so nothing is missing)."""
     if pd.api.types.is_bool_dtype(series.dtype):
-        return series.astype("float64").to_numpy(dtype=np.float64, na_value=np.nan)
+        values = series.astype("float64").to_numpy(dtype=np.float64, na_value=np.nan)
+        return values, not np.isnan(values.sum())
     if series.dtype == np.float64:
         values = series.to_numpy()          # a view: no copy of a large column
     elif pd.api.types.is_numeric_dtype(series.dtype):
         values = series.to_numpy(dtype=np.float64, na_value=np.nan)
     else:
-        converted = pd.to_numeric(series, errors="coerce")
+        try:
+            converted = pd.to_numeric(series, errors="coerce")
+        except OverflowError:
+            # pandas cannot coerce an integer of hundreds of digits; float() reads it as inf,
+            # which the check below reports with its row
+            converted = pd.Series([_parse_float(v) for v in series], index=series.index,
+                                  dtype="float64")
         bad = converted.isna().to_numpy() & series.notna().to_numpy()
         if bad.any():
             position = int(np.flatnonzero(bad)[0])
@@ -433,15 +488,16 @@ def _numeric(series: pd.Series, name: str, source: str) -> np.ndarray:
                 "the value, write a missing value as an empty field or NA, or, if the column "
                 f"holds categories, declare [variables].{name} = {{ kind = \"categorical\" }}")
         values = converted.to_numpy(dtype=np.float64, na_value=np.nan)
-    if np.isfinite(values).all():          # the common case: one pass, nothing missing
-        return values
+    total = values.sum()
+    if np.isfinite(total):                  # the common case: one reduction, all finite
+        return values, True
     infinite = np.isinf(values)
     if infinite.any():
         position = int(np.flatnonzero(infinite)[0])
         raise DataError(f"column {name!r} in {source} holds an infinite value at "
                         f"{_row_text(position)} ({float(values[position])!r}); replace it with a "
                         "finite number or leave it empty (missing)")
-    return values
+    return values, False
 
 
 def _binary(series: pd.Series, name: str, source: str) -> np.ndarray:
@@ -477,7 +533,8 @@ def _level_text(series: pd.Series) -> tuple[pd.Series, bool]:
     if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(
             series.dtype):
         values = series.to_numpy(dtype=np.float64, na_value=np.nan)
-        whole = np.isnan(values) | (values == np.round(values))
+        # an infinite code is not a whole number: it prints as 'inf', not int(inf)
+        whole = np.isnan(values) | (np.isfinite(values) & (values == np.round(values)))
         if whole.all():
             text = pd.Series([None if np.isnan(v) else str(int(v)) for v in values],
                              index=series.index, dtype="object")
@@ -560,8 +617,14 @@ def design_from_frame(frame: pd.DataFrame, variables: Sequence[str], *,
             declared_levels[name] = levels
             absent = code < 0
         else:
-            values = (_binary if kind == "binary" else _numeric)(series, name, source)
+            if kind == "binary":
+                values, complete = _binary(series, name, source), False
+            else:
+                values, complete = _numeric_checked(series, name, source)
             numeric[name] = values
+            if complete:                        # all finite: nothing missing, no extra pass
+                missing[name] = 0
+                continue
             absent = np.isnan(values)
         count = int(np.count_nonzero(absent))
         missing[name] = count
@@ -685,13 +748,14 @@ def _chunk_moments(chunk: np.ndarray, columns: tuple[str, ...],
                    groups=dict(groups or {}))
 
 
-def moments_from_design(design: Design, *, chunk_rows: int = _CHUNK_ROWS) -> Moments:
+def moments_from_design(design: Design, *, chunk_rows: int = 1 << 14) -> Moments:
     """Moments of an encoded :class:`Design` in one fused pass over its columns.
 
     Each column is centred on its mean :math:`m` (numpy's pairwise sum, accurate to a few
-    ulps) while it is copied into a chunk buffer, the chunk's cross-products are added with a
-    symmetric rank-k update (BLAS ``dsyrk``), and the residual offset of the centred columns is
-    removed at the end (the corrected two-pass formula):
+    ulps) while it is copied into a chunk buffer small enough to stay in cache; the chunk's
+    cross-products are added with a symmetric rank-k update (BLAS ``dsyrk``) of the buffer
+    with a row of ones appended, whose last column gives the sums of the centred values for
+    free; their (tiny) mean is removed at the end (the corrected two-pass formula):
 
     .. math:: C = \\sum_i (x_i - m)(x_i - m)^\\top - n\\,(\\bar x - m)(\\bar x - m)^\\top ,
               \\qquad \\bar x = m + \\tfrac1n \\sum_i (x_i - m).
@@ -703,23 +767,23 @@ def moments_from_design(design: Design, *, chunk_rows: int = _CHUNK_ROWS) -> Mom
         return Moments(n=0, columns=design.columns, means=np.zeros(p), cross=np.zeros((p, p)),
                        groups=dict(design.groups))
     pilot = np.array([column.mean() for column in design.data], dtype=np.float64)
-    buffer = np.empty((p, min(chunk_rows, n)), dtype=np.float64)
-    upper = np.zeros((p, p), dtype=np.float64, order="F")
-    sums = np.zeros(p)
+    buffer = np.empty((p + 1, min(chunk_rows, n)), dtype=np.float64)
+    buffer[p] = 1.0
+    upper = np.zeros((p + 1, p + 1), dtype=np.float64, order="F")
     for start in range(0, n, chunk_rows):
         stop = min(start + chunk_rows, n)
         width = stop - start
         for j, column in enumerate(design.data):
             np.subtract(column[start:stop], pilot[j], out=buffer[j, :width])
-        block = buffer[:, :width]
-        sums += block.sum(axis=1)
-        # upper triangle of C += (x - m)(x - m)'; block.T is Fortran-ordered (width, p)
-        upper = blas.dsyrk(1.0, block.T, beta=1.0, c=upper, trans=1, lower=0,
+        # upper triangle of [x - m; 1][x - m; 1]' by a symmetric rank-k update (BLAS dsyrk;
+        # the transpose is Fortran-ordered, so nothing is copied)
+        upper = blas.dsyrk(1.0, buffer[:, :width].T, beta=1.0, c=upper, trans=1, lower=0,
                            overwrite_c=1)
-    cross = np.triu(upper) + np.triu(upper, 1).T
-    offset = sums / n
+    full = np.triu(upper) + np.triu(upper, 1).T
+    cross = full[:p, :p]
+    offset = full[:p, p] / n            # sum_i (x_i - m) / n
     # corrected two-pass: remove the (tiny) residual mean of the centred columns
-    cross -= n * np.outer(offset, offset)
+    cross = cross - n * np.outer(offset, offset)
     return Moments(n=n, columns=design.columns, means=pilot + offset, cross=cross,
                    groups=dict(design.groups))
 

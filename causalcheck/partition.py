@@ -63,6 +63,7 @@ __all__ = [
     "TRUE_TEXTS",
     "Coded",
     "Encoded",
+    "Pieces",
     "empty_partial",
     "encode_partition",
     "encode_unchecked",
@@ -87,6 +88,18 @@ class Coded(NamedTuple):
 
     codes: np.ndarray
     keys: list
+
+
+class Pieces(NamedTuple):
+    """A float64 column delivered in consecutive pieces (several small reader batches)."""
+
+    arrays: list
+
+    def __len__(self) -> int:
+        return int(sum(len(a) for a in self.arrays))
+
+    def joined(self) -> np.ndarray:
+        return np.concatenate(self.arrays) if self.arrays else np.zeros(0)
 
 
 class Encoded(NamedTuple):
@@ -119,6 +132,8 @@ def _error(reason: str, column: str, values: Any, bad: np.ndarray) -> dict:
 
 def _numeric(column: Any, name: str) -> tuple[np.ndarray, dict | None]:
     """Float64 values, NaN where missing (``moments._numeric``'s rules)."""
+    if isinstance(column, Pieces):
+        column = column.joined()
     if isinstance(column, np.ndarray) and column.dtype.kind == "f":
         values = column.astype(np.float64, copy=False)
     else:
@@ -143,6 +158,8 @@ def _numeric(column: Any, name: str) -> tuple[np.ndarray, dict | None]:
 
 def _binary(column: Any, name: str) -> tuple[np.ndarray, dict | None]:
     """0/1 values, NaN where missing (``moments._binary``'s rules)."""
+    if isinstance(column, Pieces):
+        column = column.joined()
     series = column if isinstance(column, pd.Series) else pd.Series(column)
     if pd.api.types.is_bool_dtype(series.dtype) or pd.api.types.is_numeric_dtype(series.dtype):
         values, error = _numeric(column, name)
@@ -269,13 +286,19 @@ def _buffer(out: np.ndarray | None, width: int, rows: int) -> np.ndarray:
     return np.empty((width, rows), dtype=np.float64).T
 
 
-def _plain_floats(frame: Any, variables: Sequence[tuple[str, str]]) -> list[np.ndarray] | None:
-    """Every column as a float64 array when every variable is numeric and stored as floats."""
+def _plain_floats(frame: Any, variables: Sequence[tuple[str, str]]) -> list[Any] | None:
+    """Every column as float64 array(s) when every variable is numeric and stored as floats."""
     arrays = []
     for name, kind in variables:
         if kind != "numeric":
             return None
         column = frame[name]
+        if isinstance(column, Pieces):
+            if not all(isinstance(a, np.ndarray) and a.dtype == np.float64
+                       for a in column.arrays):
+                return None
+            arrays.append(column)
+            continue
         if isinstance(column, pd.Series):
             if column.dtype != np.float64:
                 return None
@@ -303,7 +326,13 @@ def encode_unchecked(frame: Any, plan: Mapping[str, Any], *,
     rows = len(arrays[0])
     values = _buffer(out, len(arrays), rows)
     for j, array in enumerate(arrays):
-        values[:, j] = array
+        if isinstance(array, Pieces):
+            at = 0
+            for piece in array.arrays:
+                values[at: at + len(piece), j] = piece
+                at += len(piece)
+        else:
+            values[:, j] = array
     watched = set(plan.get("watch", ()))
     extremes = {name: (float(values[:, j].min()), float(values[:, j].max()))
                 for j, (name, _) in enumerate(variables) if name in watched and rows}
@@ -586,18 +615,24 @@ def meats_of_design(design: np.ndarray, fits: Sequence[Mapping[str, Any]], *,
     # work on the (width, n) transpose: C-ordered for a column-major design, where BLAS's
     # products are an order of magnitude faster than on the (n, width) view (measured)
     rows = centred.T
-    sums = []
+    # one product for every fit: row 0 of a fit's block gives x~'beta, the others A_j' x~
+    blocks = []
     for spec in fits:
-        coef = np.zeros(width)
-        coef[list(spec["x"])] = spec["coef"]
         weights = np.asarray(spec["weights"])
-        padded = np.zeros((weights.shape[1], width))
-        padded[:, list(spec["x"])] = weights.T
+        block = np.zeros((1 + weights.shape[1], width))
+        block[0, list(spec["x"])] = spec["coef"]
+        block[1:, list(spec["x"])] = weights.T
+        blocks.append(block)
+    products = np.vstack(blocks) @ rows
+    sums = []
+    at = 0
+    for spec, block in zip(fits, blocks):
         # e_i = (y_i - ybar) - (x_i - xbar)' beta
-        error = rows[spec["y"]] - coef @ rows
+        error = rows[spec["y"]] - products[at]
         # w_i = A' x~_i for the wanted columns of A = C_XX^{-1}
-        weight = padded @ rows
+        weight = products[at + 1: at + len(block)]
         sums.append((weight * weight) @ (error * error))
+        at += len(block)
     return sums
 
 

@@ -248,6 +248,17 @@ def fit(moments: Moments, outcome: str, regressors: Sequence[str]) -> LinearFit:
             "used; add rows or adjust for fewer variables")
     iy = moments.index(y_name)
     ix = [moments.index(c) for c in names]
+    # values beyond about 1e154 overflow their squares: say which column, not a NaN later
+    beyond = [c for c in (y_name, *names)
+              if not np.isfinite(moments.cross[moments.index(c), moments.index(c)])
+              or not np.isfinite(moments.means[moments.index(c)])]
+    if beyond:
+        raise NumericsError(
+            f"the column{'s' if len(beyond) > 1 else ''} {', '.join(repr(c) for c in beyond)} "
+            f"hold{'' if len(beyond) > 1 else 's'} values so large that their sums of squares "
+            "pass the double range (about 1e154 or more); rescale "
+            f"{'them' if len(beyond) > 1 else 'it'} (thousands or millions instead of units) "
+            "or check for a stray huge number")
     syy = float(moments.cross[iy, iy])
     if not syy > 0:
         raise NumericsError(f"the outcome {y_name!r} is constant among the {n} rows used; "
@@ -440,7 +451,7 @@ def robust_std_error(source: Design | pd.DataFrame, fit: LinearFit, *,
 
 
 def robust_std_errors(source: Design | pd.DataFrame, fits: Sequence[LinearFit], column: str,
-                      *, chunk_rows: int = 1 << 17) -> list[float]:
+                      *, chunk_rows: int = 1 << 15) -> list[float]:
     """HC1 standard error of ``column`` in each of several fits, in a single pass over rows.
 
     The fits must come from the same moments (same rows, same means). Each chunk of the union
@@ -488,9 +499,25 @@ def robust_std_errors(source: Design | pd.DataFrame, fits: Sequence[LinearFit], 
     else:
         chunks = (chunk - means for chunk in _row_chunks(source, union, chunk_rows))
     for centred in chunks:
+        width = centred.shape[0]
+        error = np.empty(width)
+        weight = np.empty(width)
+        scratch = np.empty(width)
         for i, (block, weights) in enumerate(plans):
-            # [x~ y~] @ [[-beta, C^{-1} e_j], [1, 0]] = [e, w_j]
-            product = centred[:, block] @ weights
+            columns = range(block.start, block.stop) if isinstance(block, slice) else block
+            # [x~ y~] @ [[-beta, C^{-1} e_j], [1, 0]] = [e, w_j], column by column: thin
+            # products are faster as cache-resident axpy updates than as threaded BLAS calls
+            error.fill(0.0)
+            weight.fill(0.0)
+            for row, c in enumerate(columns):
+                values = centred[:, c]
+                if weights[row, 0] != 0.0:
+                    np.multiply(values, weights[row, 0], out=scratch)
+                    error += scratch
+                if weights[row, 1] != 0.0:
+                    np.multiply(values, weights[row, 1], out=scratch)
+                    weight += scratch
             # sum_i e_i^2 w_ij^2
-            totals[i] += float(np.dot(product[:, 0] ** 2, product[:, 1] ** 2))
+            np.multiply(error, weight, out=scratch)
+            totals[i] += float(np.dot(scratch, scratch))
     return [float(np.sqrt(total * f.n / f.dof)) for total, f in zip(totals, fits)]

@@ -513,10 +513,10 @@ def summarize(reported: Reported, *, names: Mapping[str, str] | None = None) -> 
         why = (f" (at {dof:g} residual degrees of freedom the {level:.0%} t quantile is "
                "infinite, so no width pins the SE down)" if se_source == "ci"
                and not math.isfinite(q) else "")
-        raise ReportedError(_paragraph([
+        raise ReportedError(_paragraph([(
             f"the standard error taken from {names[se_source]} is {se!r}, not a positive "
             f"finite number{why}; give {names['std_error']} as printed in the table, or "
-            "check the numbers and their units"]))
+            "check the numbers and their units")]))
     t = est / se
     p_value = float(2 * (stats.norm.sf(abs(t)) if dof is None else stats.t.sf(abs(t), dof)))
 

@@ -161,9 +161,9 @@ _F_LIMIT = 1e150
 
 def _cohen_f(estimate: float, threshold: float, std_error: float, dof: float) -> float:
     """Partial Cohen's f of the distance to the threshold, checked to be computable."""
-    # f_theta = |estimate - threshold| / (se sqrt(dof)); divided in steps so that no step
-    # underflows to zero (Python floats give inf, not an error, when a quotient overflows)
-    f = abs(estimate - threshold) / std_error / math.sqrt(dof)
+    # f_theta = |estimate - threshold| / (se sqrt(dof)); _core keeps se·√dof a normal double,
+    # and a quotient past the double range is inf (Python floats), caught below
+    f = abs(estimate - threshold) / (std_error * math.sqrt(dof))
     if not f <= _F_LIMIT:
         raise NumericsError(
             f"the estimate {estimate!r} lies {f:.3g} standard errors (times 1/√dof) from the "
@@ -502,7 +502,7 @@ class BoundGrid:
         b = self.bounds
         dof = b.dof + 1
         # f^2 = (estimate - threshold)^2 / (se^2 dof), formed from f so se^2 cannot underflow
-        f = np.float64(abs(b.estimate - b.threshold) / b.std_error / math.sqrt(dof))
+        f = np.float64(abs(b.estimate - b.threshold) / (b.std_error * math.sqrt(dof)))
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             needed = f**2 * (1 - self.r2dz) / self.r2dz
         return np.where((needed <= 1) & (self.r2dz > 0), needed, np.nan)

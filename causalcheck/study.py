@@ -322,8 +322,8 @@ _TOML_MESSAGES = (
     (re.compile(r"^Cannot declare \('([^']*)',?\) twice"),
      "the table [{0}] is declared twice; merge its keys under one [{0}] header"),
     (re.compile(r"^Cannot overwrite a value"),
-     "a key on this line is already set (given twice, or also set as a table); give each "
-     "key once"),
+     ("a key on this line is already set (given twice, or also set as a table); give each "
+      "key once")),
     (re.compile(r"^Illegal character '\\n'"),
      "a string runs to the end of the line; close it with a double quote"),
 )

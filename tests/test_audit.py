@@ -348,6 +348,14 @@ def test_error_missing_column_names_near_match_and_leaves_file_alone(tmp_path):
     assert _digest(tmp_path / "data.csv") == before
 
 
+def test_error_graph_cycle_is_reported_before_a_data_problem(tmp_path):
+    from causalcheck.errors import GraphError
+
+    body = CONFOUNDED.replace('"w -> y"', '"w -> y", "y -> z"').replace("data.csv", "no.csv")
+    with pytest.raises(GraphError, match="cycle"):
+        audit(_study(tmp_path, body))
+
+
 def test_error_data_file_not_found(tmp_path):
     path = _study(tmp_path, CONFOUNDED.replace("data.csv", "missing.csv"))
     with pytest.raises(DataError, match=r"'.*missing\.csv' does not exist"):

@@ -24,9 +24,9 @@ import hashlib
 import os
 import subprocess
 import sys
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable
 
 import numpy as np
 import pytest
@@ -258,6 +258,10 @@ CASES += [
          data=data_with(set_column("x", lambda i, v: "1.5"))),
     case("audit-constant-outcome", "audit", AUDIT, ("outcome 'y'", "constant"),
          data=data_with(set_column("y", lambda i, v: "2"))),
+    case("audit-constant-covariate", "audit", AUDIT,
+         ("no valid adjustment set could be estimated", "adjusting for {z} or {w, z}",
+          "regressor 'z' is constant", "drop it from the adjustment set"),
+         data=data_with(set_column("z", lambda i, v: "3"))),
     case("audit-all-missing-column", "audit", AUDIT,
          ("every row", "missing value", "'w' missing in 60 of 60 rows", "measured = false"),
          data=data_with(set_column("w", lambda i, v: ""))),
@@ -269,9 +273,20 @@ CASES += [
          study=study_with("[graph]", '[variables]\nx = { kind = "binary" }\n\n[graph]'),
          data=data_with(set_column("x", lambda i, v: str(i % 3)))),
     case("audit-perfect-collinearity", "audit", AUDIT,
-         ("'z'", "'v'", "perfectly collinear", "condition number", "Drop one of them"),
+         ("adjusting for {v, z}", "'z'", "'v'", "perfectly collinear", "condition number",
+          "Drop one of them"),
          study=study_with('"w -> y"]', '"w -> y", "v -> x", "v -> y"]'),
          data=data_with(add_column("v", lambda i, r: f"{2 * float(r[2]):.6f}"))),
+    case("audit-decimal-comma", "audit", AUDIT,
+         ("data.csv", "line 6 has 5 fields where the header has 4", "decimal comma",
+          "write decimals with a point"),
+         data=data_with(set_column("w", lambda i, v: "1,5" if i == 4 else v))),
+    case("audit-short-row", "audit", AUDIT,
+         ("data.csv", "line 3 has 2 fields where the header has 4", "fill in the missing"),
+         data=data_with(lambda rows: rows[:2] + [rows[2][:2]] + rows[3:])),
+    case("audit-huge-values", "audit", AUDIT,
+         ("adjusting for {z} or {w, z}", "column 'z'", "pass the double range", "rescale it"),
+         data=data_with(set_column("z", lambda i, v: "1e200" if i == 4 else v))),
     case("audit-treatment-unmeasured", "audit", AUDIT,
          ("[variables].x.measured", "marked measured = false", "must be a column"),
          study=study_with("[graph]", "[variables]\nx = { measured = false }\n\n[graph]")),
@@ -583,7 +598,7 @@ def test_error_catalogue_in_a_subprocess(item: Case, tmp_path: Path) -> None:
     try:
         done = subprocess.run([sys.executable, "-m", "causalcheck", *argv_of(item, tmp_path)],
                               capture_output=True, text=True, timeout=120, cwd=tmp_path,
-                              env=environment)
+                              check=False, env=environment)
     finally:
         unlock(item, tmp_path)
     check_message(item, done.returncode, done.stdout, done.stderr)
@@ -610,3 +625,47 @@ def test_base_files_are_good(tmp_path: Path, capsys) -> None:
         code = main([command, str(tmp_path / "study.toml"), "--format", "json"])
         captured = capsys.readouterr()
         assert code == 0, f"{command}: {captured.err}"
+
+
+JSON_MODE_CASES = [c for c in CASES if c.id in (
+    "controls-toml-syntax", "audit-missing-column", "vet-negative-se", "plan-strength-one",
+    "audit-out-not-ours", "wording-text-binary")]
+
+
+@pytest.mark.parametrize("item", JSON_MODE_CASES, ids=[c.id for c in JSON_MODE_CASES])
+def test_error_in_json_mode_prints_no_document(item: Case, tmp_path: Path, capsys) -> None:
+    """With --format json a pipeline gets no half document on stdout: the same one-paragraph
+    message on stderr and exit 2, so `causalcheck ... --format json > out.json` never writes
+    something that parses as a result."""
+    prepare(item, tmp_path)
+    before = snapshot(tmp_path)
+    code = main([*argv_of(item, tmp_path), "--format", "json"])
+    captured = capsys.readouterr()
+    check_message(item, code, captured.out, captured.err)
+    assert snapshot(tmp_path) == before
+
+
+_DASK = study_with('path = "data.csv"', 'path = "data.csv"\nengine = "dask"')
+DASK_CASES = [
+    case("audit-dask-decimal-comma", "audit", AUDIT, ("data.csv", "fields"), study=_DASK,
+         data=data_with(set_column("w", lambda i, v: "1,5" if i == 4 else v))),
+    case("audit-dask-non-numeric", "audit", AUDIT, ("column 'w'", "not numeric"), study=_DASK,
+         data=data_with(set_column("w", lambda i, v: "0x10"))),
+]
+
+
+@pytest.mark.xfail(strict=True, reason="engines.py (dask engine, still being written): a ragged "
+                   "CSV row escapes as pyarrow ArrowInvalid from _sniff_csv, a column of hex "
+                   "text ('0x10') as dask's ValueError from read_csv; reported to the lead")
+@pytest.mark.parametrize("item", DASK_CASES, ids=[c.id for c in DASK_CASES])
+def test_error_catalogue_dask_engine(item: Case, tmp_path: Path, capsys) -> None:
+    pytest.importorskip("dask.dataframe")
+    prepare(item, tmp_path)
+    before = snapshot(tmp_path)
+    try:
+        code = main(argv_of(item, tmp_path))
+    except Exception as error:                # noqa: BLE001 - the bug this row documents
+        pytest.fail(f"{type(error).__name__} escaped: {error}")
+    captured = capsys.readouterr()
+    check_message(item, code, captured.out, captured.err)
+    assert snapshot(tmp_path) == before

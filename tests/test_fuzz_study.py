@@ -361,3 +361,82 @@ def test_identify_refuses_a_cycle_by_naming_it():
                         'edges = ["a -> b", "b -> c", "c -> a"]\n', path="loop.toml")
     with pytest.raises(CausalCheckError, match=r"cycle.*a -> b -> c -> a|cycle.*b -> c -> a"):
         identify(study)
+
+
+# --------------------------------------------------------------------------------------------
+# The data reader: mutated CSV files through the whole audit (pandas and stream engines)
+
+CELLS = ["", "NA", "nan", "inf", "-inf", "1e308", "-1e308", "1e200", "1e-320", "0", "1", "2",
+         "a", "yes", "TRUE", '"1"', "1,5", " 3 ", "\u00e9", "1_000", "--", "1e400", "9" * 400,
+         '"a,b"', "0.5"]
+KINDS = ["", "", '[variables]\nz = { kind = "categorical" }\n',
+         '[variables]\nx = { kind = "binary" }\n',
+         '[variables]\nw = { kind = "categorical", levels = ["a", "b"] }\n']
+
+
+def mutated_data(rng: random.Random, kind: str) -> str:
+    """Rows fitting ``kind`` (a categorical z of 3 levels, a 0/1 x, a w of a/b), mutated."""
+    n = rng.choice([4, 12, 40, 60, 60])
+    rows = [["x", "y", "z", "w"]]
+    for _ in range(n):
+        z, w = rng.gauss(0, 1), rng.gauss(0, 1)
+        x = 0.6 * z + rng.gauss(0, 1)
+        y = 0.5 * x + z + 0.4 * w + rng.gauss(0, 1)
+        cells = [f"{v:.6f}" for v in (x, y, z, w)]
+        if "z = " in kind:
+            cells[2] = str(rng.randrange(3))
+        if "x = " in kind:
+            cells[0] = str(int(x > 0))
+        if "w = " in kind:
+            cells[3] = "a" if w > 0 else "b"
+        rows.append(cells)
+    for _ in range(rng.choice([0, 0, 1, 1, 2, 3])):
+        rows[rng.randrange(1, len(rows))][rng.randrange(4)] = rng.choice(CELLS)
+    if rng.random() < 0.1:                                # a whole column of one cell
+        j, cell = rng.randrange(4), rng.choice(CELLS)
+        for row in rows[1:]:
+            row[j] = cell
+    if rng.random() < 0.05:
+        rows[0][rng.randrange(4)] = rng.choice(["X", "", "x ", "z"])
+    newline = "\r\n" if rng.random() < 0.2 else "\n"
+    return ("\ufeff" if rng.random() < 0.05 else "") + newline.join(
+        ",".join(r) for r in rows) + newline
+
+
+def test_fuzz_data_files_through_the_audit(tmp_path):
+    import json
+    import warnings
+
+    from causalcheck.audit import audit
+    from causalcheck.commands.audit import document_of, render_text
+    from causalcheck.errors import CausalCheckWarning
+    from causalcheck.report.jsonout import dumps
+
+    rng = random.Random(31)
+    tally = {"audited": 0, "refused": 0}
+    for number in range(120):
+        kind = rng.choice(KINDS)
+        data = mutated_data(rng, kind)
+        engine = rng.choice(["pandas", "stream"])
+        study = (f'[study]\ntreatment = "x"\noutcome = "y"\n[data]\npath = "data.csv"\n'
+                 f'engine = "{engine}"\n{kind}[graph]\nedges = ["z -> x", '
+                 '"z -> y", "x -> y", "w -> y"]\n[controls]\nused = ["z"]\n')
+        (tmp_path / "data.csv").write_text(data, encoding="utf-8")
+        (tmp_path / "study.toml").write_text(study, encoding="utf-8")
+        with warnings.catch_warnings():
+            warnings.simplefilter("error")                  # a raw numpy warning is a bug
+            warnings.simplefilter("ignore", CausalCheckWarning)
+            try:
+                result = audit(tmp_path / "study.toml")
+                document = document_of(result)
+                json.loads(dumps(document), parse_constant=lambda c: 1 / 0)
+                render_text(result, document=document)
+                tally["audited"] += 1
+            except CausalCheckError as error:
+                assert str(error) and "Traceback" not in str(error)
+                tally["refused"] += 1
+            except Exception:                  # noqa: BLE001
+                pytest.fail(f"data file {number} ({engine}) raised a non-CausalCheckError:\n"
+                            f"{traceback.format_exc()}\n--- data ---\n{data[:600]}\n"
+                            f"--- study ---\n{study}")
+    assert tally["audited"] > 20 and tally["refused"] > 20, tally

@@ -117,7 +117,7 @@ def test_too_few_dof_gives_null_robustness_values(capsys):
 
 
 def test_text_report_of_a_degenerate_table_shows_the_note(capsys):
-    code, out, err = run(capsys, "vet", "--estimate", "0", "--se", "1", "--dof", "50")
+    code, out, _ = run(capsys, "vet", "--estimate", "0", "--se", "1", "--dof", "50")
     assert code == 0
     notes = out.split("\nNotes\n", 1)[1]
     assert "the estimate equals the threshold" in " ".join(notes.split())

@@ -145,8 +145,8 @@ def _sections(result: AuditResult) -> list[tuple[str, list[str], list[list[str]]
                      _num(entry.robust_std_error),
                      interval(entry.ci_low, entry.ci_high, like=entry.estimate),
                      _yes_no(entry.valid)])
-    sections.append((f"Estimates of the slope of {result.outcome} on {result.treatment} (* = "
-                     "headline)",
+    title = f"Estimates of the slope of {result.outcome} on {result.treatment} (* = headline)"
+    sections.append((title,
                      ["source", "adjusted for", "estimate", "SE", "HC1 SE", f"{level} CI",
                       "valid"], rows, [False, False, True, True, True, True, False]))
     if result.decomposition is not None and result.decomposition.terms:

@@ -15,7 +15,7 @@ from pathlib import Path
 
 from ..errors import OutputError
 
-__all__ = ["prepare_output_folder", "write_atomic", "write_all_atomic", "MARKER"]
+__all__ = ["MARKER", "prepare_output_folder", "write_all_atomic", "write_atomic"]
 
 MARKER = ".causalcheck-output"
 
@@ -37,7 +37,7 @@ def prepare_output_folder(folder: str | Path, *, force: bool = False) -> Path:
             raise OutputError(
                 f"--out folder {str(folder)!r} is not empty and was not written by causalcheck "
                 f"({len(entries)} entr{'ies' if len(entries) != 1 else 'y'}, e.g. "
-                f"{sorted(entries)[0]!r}); nothing was written. "
+                f"{min(entries)!r}); nothing was written. "
                 "Choose a new or empty folder, or pass --force to write into it anyway")
     else:
         try:

@@ -1,4 +1,6 @@
-"""The long fuzzing run, on demand: ``python -m pytest -q -m benchmark -s tests/benchmarks/test_bench_fuzz.py``.
+"""The long fuzzing run, on demand.
+
+Run it with ``python -m pytest -q -m benchmark -s tests/benchmarks/test_bench_fuzz.py``.
 
 The same checks as ``tests/test_fuzz_study.py`` (only ``CausalCheckError`` may escape the
 parser or ``identify``; refusals name the file, a key path and a real line), about twenty
@@ -20,7 +22,7 @@ from hypothesis import HealthCheck, given, settings
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-import test_fuzz_study as fuzz  # noqa: E402
+import test_fuzz_study as fuzz
 
 pytestmark = pytest.mark.benchmark
 
