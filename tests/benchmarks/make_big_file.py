@@ -9,7 +9,7 @@ numbers.
 
 Usage::
 
-    /work/venv/bin/python tests/benchmarks/make_big_file.py [--rows 10000000] [--out /tmp/causalcheck-bench]
+    python tests/benchmarks/make_big_file.py [--rows 10000000] [--out /tmp/causalcheck-bench]
 
 It writes ``big.parquet``, ``big.csv``, ``big_parquet.toml`` and ``big_csv.toml`` into ``--out``
 and skips a file that already exists with the expected number of rows. Memory stays bounded:

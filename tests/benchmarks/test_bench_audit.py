@@ -10,7 +10,7 @@ statsmodels OLS refitted once per set on the data already in memory.
 
 Run on demand::
 
-    /work/venv/bin/python -m pytest -q -m benchmark -s tests/benchmarks/test_bench_audit.py
+    python -m pytest -q -m benchmark -s tests/benchmarks/test_bench_audit.py
 
 Targets: at least 20 times faster than the peer, and the audit's time beyond reading the file
 at most a quarter of the read time.

@@ -7,7 +7,7 @@ it. The Wishart shortcut draws the matrix directly; the peer simulates 2,000 row
 their covariance (numpy), then fits the same options with the same batched solver, so the
 ratio measures the sampling shortcut alone. Both run in the same process, one after the other.
 
-Run with ``/work/venv/bin/python -m pytest -m benchmark tests/benchmarks/test_bench_plan.py -s``.
+Run with ``python -m pytest -m benchmark tests/benchmarks/test_bench_plan.py -s``.
 Target: at least 100,000 simulated studies a minute with the shortcut.
 """
 

@@ -7,7 +7,7 @@ drawing on top of the unavoidable encode. Each figure is drawn from the hand-mad
 the median is reported; the whole ``--out`` bundle (all figures, HTML, Markdown, JSON) is timed
 too.
 
-Run: ``/work/venv/bin/python -m pytest -m benchmark tests/benchmarks/test_bench_report.py -s``
+Run: ``python -m pytest -m benchmark tests/benchmarks/test_bench_report.py -s``
 """
 
 from __future__ import annotations

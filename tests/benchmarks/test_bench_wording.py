@@ -12,7 +12,7 @@ called "reading the sentences": one regular-expression split on end punctuation,
 ``re.split(r"(?<=[.!?])\\s+", text)``. The ratio says what the review costs per character
 over merely cutting the text into sentences.
 
-Run with ``/work/venv/bin/python -m pytest -m benchmark tests/benchmarks/test_bench_wording.py -s``.
+Run with ``python -m pytest -m benchmark tests/benchmarks/test_bench_wording.py -s``.
 """
 
 from __future__ import annotations
