@@ -33,7 +33,6 @@ from __future__ import annotations
 
 import warnings
 from collections.abc import Callable, Mapping, Sequence
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -368,22 +367,9 @@ def audit(study_or_path: Study | str | Path, data: pd.DataFrame | str | Path | N
     notes = _Notes()
 
     columns = _measured_columns(study)
-    # The graph work (pure Python) runs in a thread while the rows are read and reduced
-    # (pyarrow and numpy release the GIL), so it costs no wall time beyond the data pass.
-    # A graph error is still reported before a data error.
-    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="causalcheck-graph") as pool:
-        graph_job = pool.submit(identify, study)
-        try:
-            source_rows = collect_rows(study, data, columns, notes=notes.add, engine=engine,
-                                       quiet=quiet)
-        except CausalCheckError:
-            graph_job.result()
-            raise
-        try:
-            identification = graph_job.result()
-        except BaseException:
-            source_rows.close()
-            raise
+    identification = identify(study)          # a graph error comes before any data error
+    source_rows = collect_rows(study, data, columns, notes=notes.add, engine=engine,
+                               quiet=quiet)
     moments, rows = source_rows.moments, source_rows.rows
     if rows.dropped_missing:
         worst = sorted(((v, k) for k, v in rows.missing.items() if v), reverse=True)[:3]

@@ -23,9 +23,9 @@ cross-products). This module computes it from data of any size, with ``[data].en
     footer), ``pandas`` otherwise; a Dask frame goes to ``dask``, a pandas frame to ``pandas``.
     The choice is in ``rows.engine`` and, when it is not ``pandas``, in a note.
 
-Each batch or partition is reduced with the corrected two-pass formula and batches are merged
-with the pairwise update of Chan, Golub & LeVeque (1979), so that a column near :math:`10^9`
-with unit spread keeps its digits. Categorical variables need no first pass: each batch keeps
+Each batch or partition is reduced on data shifted by a pilot mean (Chan, Golub & LeVeque
+1983) and batches are merged with their pairwise update (1979), means kept as offsets from the
+shift, so that a column near :math:`10^9` with unit spread keeps its digits. Categorical variables need no first pass: each batch keeps
 a 0/1 column for every distinct value it holds, and the merge lays both sides on the union of
 values (a value absent from a batch is exactly a column of zeros there); once every batch is
 in, values become levels (the declared ``levels``, else the sorted observed ones — numbers
@@ -44,6 +44,9 @@ References
 ----------
 Chan, T. F., Golub, G. H. & LeVeque, R. J. (1979). Updating formulae and a pairwise algorithm
 for computing sample variances. Technical Report STAN-CS-79-773, Stanford University.
+
+Chan, T. F., Golub, G. H. & LeVeque, R. J. (1983). Algorithms for computing the sample
+variance: analysis and recommendations. The American Statistician 37(3), 242–247.
 
 MacKinnon, J. G. & White, H. (1985). Some heteroskedasticity-consistent covariance matrix
 estimators with improved finite sample properties. Journal of Econometrics 29, 305–325.
@@ -149,9 +152,10 @@ class EngineChoice:
 
     engine: str
     reason: str
+    automatic: bool = False          # chosen by ``auto``
 
-    def to_dict(self) -> dict[str, str]:
-        return {"engine": self.engine, "reason": self.reason}
+    def to_dict(self) -> dict[str, Any]:
+        return {"engine": self.engine, "reason": self.reason, "automatic": self.automatic}
 
 
 @dataclass(frozen=True, eq=False)
@@ -501,17 +505,17 @@ def choose_engine(study: Study | None, data: Any = None, *, engine: str | None =
     if wanted != "auto":
         return EngineChoice(wanted, f"engine {wanted} was asked for")
     if _is_dask_frame(data):
-        return EngineChoice("dask", "the data is a Dask frame")
+        return EngineChoice("dask", "the data is a Dask frame", True)
     if isinstance(data, pd.DataFrame):
-        return EngineChoice("pandas", "the data is a pandas frame in memory")
+        return EngineChoice("pandas", "the data is a pandas frame in memory", True)
     path = _data_path(study, data)
     if path is None or not path.is_file():
-        return EngineChoice("pandas", "no file to measure")
+        return EngineChoice("pandas", "no file to measure", True)
     size = path.stat().st_size
     limit = AUTO_STREAM_BYTES / 1024 / 1024
     if size > AUTO_STREAM_BYTES:
         return EngineChoice("stream", f"the file is {size / 1024 / 1024:,.0f} MB, over the "
-                            f"{limit:.0f} MB auto limit for reading in memory")
+                            f"{limit:.0f} MB auto limit for reading in memory", True)
     if _kind_of_file(path) == "parquet":
         try:
             import pyarrow.parquet as pq
@@ -523,9 +527,9 @@ def choose_engine(study: Study | None, data: Any = None, *, engine: str | None =
         if decoded > AUTO_STREAM_BYTES:
             return EngineChoice("stream", f"its {len(variables)} used columns decode to about "
                                 f"{decoded / 1024 / 1024:,.0f} MB ({rows:,} rows), over the "
-                                f"{limit:.0f} MB auto limit for reading in memory")
+                                f"{limit:.0f} MB auto limit for reading in memory", True)
     return EngineChoice("pandas", f"the file is {size / 1024 / 1024:,.1f} MB, under the "
-                        f"{limit:.0f} MB auto limit")
+                        f"{limit:.0f} MB auto limit", True)
 
 
 def _batch_rows(study: Study | None, width: int, batch_rows: int | None) -> int:
@@ -652,7 +656,8 @@ def _sql_text(text: str) -> str:
 
 def _iter_file_batches(path: Path, kind: str, columns: Sequence[str],
                        types: Mapping[str, Any], batch_rows: int, reader: str,
-                       bytes_per_row: float) -> Iterator[Any]:
+                       bytes_per_row: float,
+                       nulls: Sequence[str] = CSV_NULL_VALUES) -> Iterator[Any]:
     """Lists of consecutive Arrow record batches of ``columns`` typed as ``types``, about
     ``batch_rows`` rows a list."""
     import pyarrow as pa
@@ -667,9 +672,9 @@ def _iter_file_batches(path: Path, kind: str, columns: Sequence[str],
             if kind == "csv":
                 type_spec = "{" + ", ".join(f"{_sql_text(c)}: {_sql_text(_duckdb_type(types[c]))}"
                                             for c in columns) + "}"
-                nulls = "[" + ", ".join(_sql_text(v) for v in CSV_NULL_VALUES) + "]"
+                null_list = "[" + ", ".join(_sql_text(v) for v in nulls) + "]"
                 relation = (f"read_csv({_sql_text(str(path))}, header = true, delim = "
-                            f"{_sql_text(_csv_separator(path))}, nullstr = {nulls}, "
+                            f"{_sql_text(_csv_separator(path))}, nullstr = {null_list}, "
                             f"types = {type_spec})")
             else:
                 relation = f"read_parquet({_sql_text(str(path))})"
@@ -844,6 +849,10 @@ def _fit_specs(plan: _Plan, fits: Sequence[LinearFit], variables: Sequence[tuple
             for f, w in zip(fits, wanted)]
 
 
+class _ReadAgain(Exception):
+    """The first pass must start again (with the full list of missing-value texts)."""
+
+
 class _BatchEngine(RowSource):
     """Shared by the file and frame sources: first pass, finish, second pass."""
 
@@ -871,6 +880,14 @@ class _BatchEngine(RowSource):
     # passes ------------------------------------------------------------------------------
     def first_pass(self, *, quiet: bool, replay: Sequence[str] | None,
                    spill: bool) -> _Plan:
+        try:
+            return self._first_pass(quiet=quiet, replay=replay, spill=spill)
+        except _ReadAgain:
+            # a file writing missing values as NA, NULL, ...: read it again with every token
+            return self._first_pass(quiet=quiet, replay=replay, spill=spill)
+
+    def _first_pass(self, *, quiet: bool, replay: Sequence[str] | None,
+                    spill: bool) -> _Plan:
         plan = {"variables": [list(v) for v in self.variables],
                 "watch": _watch(self.study, self.variables)}
         replay_set = set(replay) if replay is not None else {n for n, _ in self.variables}
@@ -1073,6 +1090,11 @@ class FileRows(_BatchEngine):
                             f"({type(e).__name__}: {e}); check that the file is complete and "
                             "in that format") from None
         self.types = _read_types(self.kind, file_types, variables)
+        # Reading numbers only, DuckDB is a third faster told that only an empty field is
+        # missing (NaN and nan it reads as NaN, which is missing too); a file that writes NA,
+        # NULL, #N/A... then fails to convert and is read again with the whole list.
+        text = any(str(t) == "string" for t in self.types.values())
+        self.nulls: tuple[str, ...] = CSV_NULL_VALUES if text else ("",)
 
     def _total_rows(self) -> int | None:
         if self.kind == "parquet":
@@ -1091,24 +1113,26 @@ class FileRows(_BatchEngine):
         kinds = dict(self.variables)
         done = 0
         batches = _iter_file_batches(self.path, self.kind, names, self.types,
-                                     self.batch_rows, self.reader, self.bytes_per_row)
+                                     self.batch_rows, self.reader, self.bytes_per_row,
+                                     self.nulls)
         index = 0
         while True:
             try:
                 batch = next(batches)              # a list of consecutive record batches
             except StopIteration:
                 return
-            except (pa.ArrowInvalid, pa.ArrowNotImplementedError, OSError, RuntimeError,
-                    ValueError) as error:
-                if isinstance(error, DataError):
+            except Exception as error:
+                reader_error = isinstance(error, (pa.ArrowInvalid, pa.ArrowNotImplementedError,
+                                                  OSError, RuntimeError, ValueError)) or \
+                    "duckdb" in (type(error).__module__ or "")
+                if isinstance(error, DataError) or not reader_error:
                     raise
+                match = _DUCKDB_CSV_ERROR.search(str(error))
+                if match and match.group(3) in CSV_NULL_VALUES and self.nulls != CSV_NULL_VALUES:
+                    self.nulls = CSV_NULL_VALUES
+                    raise _ReadAgain() from None
                 raise _read_error(error, path=self.path, source=self.source, done=done,
                                   header=self.header, var_kinds=kinds) from None
-            except Exception as error:
-                if type(error).__module__.startswith("duckdb") or "duckdb" in repr(type(error)):
-                    raise _read_error(error, path=self.path, source=self.source, done=done,
-                                      header=self.header, var_kinds=kinds) from None
-                raise
             rows = sum(b.num_rows for b in batch)
             if rows == 0:
                 continue
@@ -1353,9 +1377,10 @@ def compute_moments(study: Study | None, data: Any = None, *, engine: str | None
     choice = choose_engine(study, data, engine=engine, variables=variables)
     kinds = _kinds(study, variables)
     notes: list[str] = []
-    if (engine is None or engine == "auto") and choice.engine != "pandas" and (
-            study is None or study.data is None or study.data.engine == "auto"):
+    if choice.automatic and choice.engine != "pandas":
         notes.append(f"engine auto chose {choice.engine}: {choice.reason}")
+    if choice.engine == "dask":
+        _require_dask()
     path = _data_path(study, data) if not isinstance(data, pd.DataFrame) and not \
         _is_dask_frame(data) else None
     if choice.engine == "pandas":
@@ -1407,6 +1432,16 @@ def compute_moments(study: Study | None, data: Any = None, *, engine: str | None
         data, pd.DataFrame) else None)
     notes.append(f"the moments were computed on {dask_rows.where}")
     return MomentsResult(plan.moments, plan.rows, dask_rows, "dask", tuple(notes))
+
+
+def _require_dask() -> None:
+    try:
+        import dask.dataframe  # noqa: F401
+    except ImportError as error:
+        raise DataError(
+            f"engine dask needs the dask package with its dataframe part ({error}); install "
+            "it with pip install \"causalcheck[dask]\", or set [data].engine = \"stream\" to "
+            "read a large file in batches on this machine") from None
 
 
 def _run_dask(rows: DaskRows, path: Path | None) -> _Plan:

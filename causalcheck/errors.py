@@ -10,22 +10,25 @@ fix it. Study-file problems are collected and raised together as one :class:`Stu
 from __future__ import annotations
 
 import difflib
+from collections.abc import Iterable
 from dataclasses import dataclass
-from typing import Iterable
 
 __all__ = [
     "CausalCheckError",
-    "StudyFileError",
+    "CausalCheckWarning",
     "DataError",
+    "DegenerateWarning",
     "GraphError",
+    "LexiconError",
     "NumericsError",
-    "ReportedError",
     "OutputError",
     "PlanError",
     "Problem",
+    "ReportedError",
+    "StudyFileError",
+    "TextFileError",
+    "WordingError",
     "near_matches",
-    "CausalCheckWarning",
-    "DegenerateWarning",
 ]
 
 
@@ -85,6 +88,26 @@ class OutputError(CausalCheckError):
 class PlanError(CausalCheckError):
     """Planning inputs that describe no possible study (for example, path strengths that
     explain more than all of a variable's variance)."""
+
+
+class WordingError(CausalCheckError):
+    """A bad input to the wording review (an option value, a text file, a lexicon file)."""
+
+
+class TextFileError(WordingError):
+    """The report text cannot be read as text."""
+
+
+class LexiconError(WordingError):
+    """A lexicon file breaks the lexicon format; carries every problem found."""
+
+    def __init__(self, path: str, problems: Iterable[str]):
+        self.path = path
+        self.problems = tuple(problems)
+        count = len(self.problems)
+        head = f"lexicon file {path!r} has {count} problem{'s' if count != 1 else ''}"
+        body = "\n".join(f"  - {p}" for p in self.problems)
+        super().__init__(f"{head}:\n{body}")
 
 
 class CausalCheckWarning(UserWarning):

@@ -751,11 +751,12 @@ def _chunk_moments(chunk: np.ndarray, columns: tuple[str, ...],
 def moments_from_design(design: Design, *, chunk_rows: int = 1 << 14) -> Moments:
     """Moments of an encoded :class:`Design` in one fused pass over its columns.
 
-    Each column is centred on its mean :math:`m` (numpy's pairwise sum, accurate to a few
-    ulps) while it is copied into a chunk buffer small enough to stay in cache; the chunk's
+    Each column is centred on a pilot :math:`m`, the mean of the first chunk (within a small
+    fraction of a standard deviation of the full mean), while it is copied into a chunk
+    buffer small enough to stay in cache; the chunk's
     cross-products are added with a symmetric rank-k update (BLAS ``dsyrk``) of the buffer
     with a row of ones appended, whose last column gives the sums of the centred values for
-    free; their (tiny) mean is removed at the end (the corrected two-pass formula):
+    free; their mean, the offset of the pilot, is removed at the end (the corrected two-pass formula):
 
     .. math:: C = \\sum_i (x_i - m)(x_i - m)^\\top - n\\,(\\bar x - m)(\\bar x - m)^\\top ,
               \\qquad \\bar x = m + \\tfrac1n \\sum_i (x_i - m).
@@ -766,8 +767,10 @@ def moments_from_design(design: Design, *, chunk_rows: int = 1 << 14) -> Moments
     if n == 0:
         return Moments(n=0, columns=design.columns, means=np.zeros(p), cross=np.zeros((p, p)),
                        groups=dict(design.groups))
-    pilot = np.array([column.mean() for column in design.data], dtype=np.float64)
-    buffer = np.empty((p + 1, min(chunk_rows, n)), dtype=np.float64)
+    # pilot: the mean of the first chunk (the exact offset to the full mean is removed below)
+    first = min(chunk_rows, n)
+    pilot = np.array([column[:first].mean() for column in design.data], dtype=np.float64)
+    buffer = np.empty((p + 1, first), dtype=np.float64)
     buffer[p] = 1.0
     upper = np.zeros((p + 1, p + 1), dtype=np.float64, order="F")
     for start in range(0, n, chunk_rows):
@@ -782,7 +785,7 @@ def moments_from_design(design: Design, *, chunk_rows: int = 1 << 14) -> Moments
     full = np.triu(upper) + np.triu(upper, 1).T
     cross = full[:p, :p]
     offset = full[:p, p] / n            # sum_i (x_i - m) / n
-    # corrected two-pass: remove the (tiny) residual mean of the centred columns
+    # corrected two-pass: remove the (small) mean of the pilot-centred columns
     cross = cross - n * np.outer(offset, offset)
     return Moments(n=n, columns=design.columns, means=pilot + offset, cross=cross,
                    groups=dict(design.groups))

@@ -51,7 +51,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import linalg, stats
+from scipy import linalg, special
 
 from .errors import CausalCheckWarning, DataError, NumericsError
 from .moments import Design, Moments
@@ -162,7 +162,8 @@ class LinearFit:
 
     def p_value(self, column: str) -> float:
         """Two-sided p-value of the t test that the slope is zero."""
-        return float(2.0 * stats.t.sf(abs(self.t(column)), self.dof))
+        # 2 * (1 - F_t(|t|; dof)), with scipy.special's Student t distribution function
+        return float(2.0 * special.stdtr(self.dof, -abs(self.t(column))))
 
     def standardized_coefficient(self, column: str) -> float:
         return float(self.standardized[self._where(column)])
@@ -170,7 +171,8 @@ class LinearFit:
     def confidence_interval(self, column: str, *, alpha: float = 0.05) -> Interval:
         """Two-sided :math:`1-\\alpha` interval, :math:`\\hat\\beta \\pm t_{1-\\alpha/2,\\,dof}\\,SE`."""
         estimate, se = self.coefficient(column), self.se(column)
-        quantile = float(stats.t.ppf(1.0 - alpha / 2.0, self.dof))
+        # t_{1 - alpha/2, dof}: scipy.special's inverse of the Student t distribution function
+        quantile = float(special.stdtrit(self.dof, 1.0 - alpha / 2.0))
         return Interval(estimate - quantile * se, estimate + quantile * se, 1.0 - alpha)
 
     def to_dict(self) -> dict[str, Any]:

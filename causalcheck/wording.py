@@ -105,7 +105,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
-from .errors import CausalCheckError, near_matches
+from .errors import LexiconError, TextFileError, WordingError, near_matches
 from .study import Study
 
 __all__ = [
@@ -140,6 +140,7 @@ __all__ = [
     "review_text",
     "split_sentences",
     "study_terms",
+    "wording_block",
 ]
 
 # --------------------------------------------------------------------------------------------
@@ -183,24 +184,9 @@ def grade_name(level: int) -> str:
 # Errors
 
 
-class WordingError(CausalCheckError):
-    """A bad input to the wording review (an option value, a text file, a lexicon file)."""
-
-
-class TextFileError(WordingError):
-    """The report text cannot be read as text."""
-
-
-class LexiconError(WordingError):
-    """A lexicon file breaks the lexicon format; carries every problem found."""
-
-    def __init__(self, path: str, problems: Iterable[str]):
-        self.path = path
-        self.problems = tuple(problems)
-        count = len(self.problems)
-        head = f"lexicon file {path!r} has {count} problem{'s' if count != 1 else ''}"
-        body = "\n".join(f"  - {p}" for p in self.problems)
-        super().__init__(f"{head}:\n{body}")
+# WordingError, TextFileError and LexiconError live in causalcheck.errors with the other
+# errors; they are re-exported here (see the import above) so `from causalcheck.wording import
+# WordingError` keeps working.
 
 
 # --------------------------------------------------------------------------------------------
@@ -2837,9 +2823,59 @@ def review_for_study(study: Study, robustness_value: float | None = None, *,
     """
     if study.report_text is None:
         return None
+    if not study.report_text.exists():
+        # read_text_file's own message says paths are relative to the working folder; this
+        # one is relative to the study file
+        raise TextFileError(
+            f"[study].report_text in study file {study.source!r} names "
+            f"{str(study.report_text)!r}, which does not exist; the path is relative to the "
+            "study file's folder. Fix report_text, or remove it")
     try:
         return review_file(study.report_text, study=study, robustness_value=robustness_value,
                            lexicon=lexicon)
     except TextFileError as error:
         raise TextFileError(f"[study].report_text in study file {study.source!r}: {error}"
                             ) from None
+
+
+def wording_block(study: Study, robustness_value: float | None = None, *,
+                  lexicon: Lexicon | None = None) -> dict[str, Any] | None:
+    """The ``wording`` entry of an audit or vet document; None without ``[study].report_text``.
+
+    Reviews the study's report text (:func:`review_for_study`) against the study's design and
+    ``robustness_value`` (the one the audit or vet report computed) and keeps what a report
+    shows: the wording contract's ``claims`` list and ``supported_level``, with the evidence,
+    the counts, the review's verdict paragraph and its notes. A report text that cannot be
+    read is not an error here (only ``causalcheck wording`` itself refuses it): the entry then
+    has ``reviewed`` false, ``claims`` null and the reason in ``error``, for the report's notes.
+
+    Examples
+    --------
+    >>> from causalcheck.study import parse_study
+    >>> study = parse_study('[study]\\ntreatment = "x"\\noutcome = "y"\\n'
+    ...                     'report_text = "no-such-file.md"\\n[graph]\\nedges = ["x -> y"]\\n')
+    >>> block = wording_block(study, 0.2)
+    >>> block["reviewed"], block["claims"], "does not exist" in block["error"]
+    (False, None, True)
+    """
+    if study.report_text is None:
+        return None
+    source = str(study.report_text)
+    try:   # shown as the user would type it from here, like the study file's own path
+        source = str(study.report_text.relative_to(Path.cwd()))
+    except ValueError:
+        pass
+    try:
+        review = review_for_study(study, robustness_value, lexicon=lexicon)
+    except TextFileError as error:
+        return {"source": source, "reviewed": False, "error": str(error), "claims": None,
+                "supported_level": None, "supported_grade": None, "notes": []}
+    assert review is not None
+    full = review.to_dict()
+    return {"source": source, "reviewed": True, "error": None, "claims": full["claims"],
+            "supported_level": full["supported_level"],
+            "supported_grade": review.evidence.supported_grade,
+            "evidence": full["evidence"], "format": review.text_format,
+            "lines": review.lines, "sentences": review.sentences, "counts": full["counts"],
+            "study_claim": full["study_claim"], "verdict": full["verdict"],
+            "notes": full["notes"]}

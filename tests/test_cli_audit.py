@@ -168,3 +168,42 @@ def test_error_missing_column_message(study, capsys):
     assert main(["audit", str(study)]) == 2
     err = capsys.readouterr().err
     assert "has no column 'income' (did you mean 'Income'?)" in err
+
+
+AUDIT_REPORT = """# Tutoring evaluation
+
+Hours of tutoring raise test scores by two points an hour.
+Pupils with more tutoring had higher test scores.
+"""
+
+
+def test_audit_reviews_the_report_text_with_its_robustness_value(study, capsys, tmp_path):
+    text = study.read_text().replace('outcome = "score"\n',
+                                     'outcome = "score"\nreport_text = "report.md"\n')
+    study.write_text(text)
+    (study.parent / "report.md").write_text(AUDIT_REPORT)
+    assert main(["audit", str(study), "--format", "json"]) == 0
+    document = json.loads(capsys.readouterr().out)
+    wording = document["wording"]
+    rv = document["sensitivity"]["robustness_value"]
+    assert wording["reviewed"] and wording["evidence"]["robustness_value"] == rv
+    # the rule of assess_evidence (common practice): observational, RV >= 0.10 -> level 3
+    assert wording["supported_level"] == (3 if rv >= 0.10 else 2)
+    assert [(c["line"], c["level"]) for c in wording["claims"]] == [(3, 5), (4, 1)]
+    assert wording["claims"][0]["verdict"] == "stronger than the evidence"
+    assert "In the report text, 1 of the 2 sentences that link the treatment and the " \
+           "outcome claims more than" in document["verdict"]
+    assert "The wording review recognises causal phrases" in " ".join(document["cautions"])
+    assert main(["audit", str(study)]) == 0
+    out = capsys.readouterr().out
+    assert out.index("Independences the graph implies") < out.index("Wording of the report") \
+        < out.index("Cautions")
+    assert "  line 3: causal (5) -- stronger than the evidence" in out
+    # an unreadable text: a note in the report, exit 0; `causalcheck wording` refuses it
+    (study.parent / "report.md").write_bytes(b"\x00\x01\x02binary")
+    assert main(["audit", str(study), "--format", "json"]) == 0
+    document = json.loads(capsys.readouterr().out)
+    assert document["wording"]["reviewed"] is False
+    assert "is a binary file" in document["wording"]["error"]
+    assert main(["wording", "--study", str(study)]) == 2
+    assert "is a binary file" in capsys.readouterr().err

@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import subprocess
 import sys
+from pathlib import Path
 
 import pytest
 
@@ -175,3 +176,76 @@ def test_error_exit_code_from_a_real_process():
     assert process.returncode == 2
     assert "--ci is reversed or empty" in process.stderr
     assert "Traceback" not in process.stderr
+
+
+# --------------------------------------------------------------------------------------------
+# The review of [study].report_text inside the vet report
+
+READING = Path(__file__).resolve().parents[1] / "scenarios" / "reading_app_review" / "study.toml"
+
+
+def test_report_text_is_reviewed_in_every_output(capsys, tmp_path):
+    code, out, _ = run(capsys, READING, "--format", "json")
+    document = json.loads(out)
+    assert code == 0
+    wording = document["wording"]
+    assert wording["reviewed"] is True and wording["supported_level"] == 3
+    # the same review `causalcheck wording` gives with vet's own robustness value
+    rv = document["robustness_value"]
+    assert wording["evidence"]["robustness_value"] == rv
+    assert main(["wording", "--study", str(READING), "--robustness-value", repr(rv),
+                 "--format", "json"]) == 0
+    alone = json.loads(capsys.readouterr().out)
+    assert wording["claims"] == alone["claims"]
+    stronger = [c for c in wording["claims"] if c["verdict"] == "stronger than the evidence"]
+    assert len(stronger) == 4 and len(wording["claims"]) == 7
+    assert ("In the report text, 4 of the 7 sentences that link the treatment and the outcome "
+            "claim more than") in document["verdict"]
+
+    code, out, _ = run(capsys, READING)
+    assert "\nWording of the report\n" in out
+    assert out.index("Extreme case") < out.index("Wording of the report") < out.index("Notes")
+    assert ('  line 8: causal (5) -- stronger than the evidence\n'
+            '    "Daily app use improves reading scores substantially."\n'
+            '    reword: "Daily app use may improve reading scores substantially."') in out
+
+    folder = tmp_path / "report"
+    assert run(capsys, READING, "--out", folder)[0] == 0
+    markdown = (folder / "report.md").read_text(encoding="utf-8")
+    assert markdown.index("## How strong") < markdown.index("## Wording of the report") \
+        < markdown.index("## Cautions")
+    assert ("| 8 | Daily app use improves reading scores substantially. | 5 causal | stronger "
+            "than the evidence | Daily app use may improve reading scores substantially. |"
+            ) in markdown
+    page = (folder / "report.html").read_text(encoding="utf-8")
+    assert page.index('id="sensitivity"') < page.index('id="wording"') \
+        < page.index('id="cautions"')
+    assert '<a href="#wording">Wording of the report</a>' in page
+    assert "Sumner, P." in page           # the method is cited
+
+
+def test_unreadable_report_text_is_a_note_not_a_crash(capsys, study_file, tmp_path):
+    study_file.write_text(STUDY.replace('outcome = "bill_change"\n',
+                                        'outcome = "bill_change"\nreport_text = "gone.md"\n'))
+    code, out, err = run(capsys, study_file)
+    assert code == 0 and "Traceback" not in err
+    assert "Wording of the report\n- Not reviewed: [study].report_text in study file" in out
+    flowing = " ".join(out.split())
+    assert "gone.md', which does not exist; the path is relative to the study file's" in flowing
+    code, out, _ = run(capsys, study_file, "--format", "json")
+    document = json.loads(out)
+    assert document["wording"]["reviewed"] is False and document["wording"]["claims"] is None
+    assert "the path is relative to the study file's folder" in document["wording"]["error"]
+    assert "could not be reviewed" in document["verdict"]
+    folder = tmp_path / "report"
+    assert run(capsys, study_file, "--out", folder)[0] == 0
+    assert "The report text was not reviewed:" in (folder / "report.md").read_text()
+    # `causalcheck wording` itself still refuses the file
+    code, out, err = run_command(capsys, "wording", "--study", study_file)
+    assert code == 2 and out == "" and "does not exist" in err
+
+
+def run_command(capsys, *argv):
+    code = main([*map(str, argv)])
+    captured = capsys.readouterr()
+    return code, captured.out, captured.err

@@ -289,6 +289,27 @@ def test_missing_values_are_counted_per_column_across_batches(files):
         assert result.rows.to_dict()["engine"] == "stream"
 
 
+@pytest.mark.parametrize("reader", ["duckdb", "pyarrow"])
+def test_missing_value_texts_are_read_as_in_memory(tmp_path, monkeypatch, reader):
+    # NA, NULL, #N/A and nan in numeric columns are missing, as the in-memory reader has them
+    # (the DuckDB reader first tries an empty field only, then reads the file again)
+    monkeypatch.setitem(engines.READERS, "csv", reader)
+    frame = _frame(rows=3000)[["heat", "bill", "meter", "vent"]].astype(object)
+    frame.loc[100, "heat"] = "NA"
+    frame.loc[2000, "bill"] = "NULL"
+    frame.loc[2900, "vent"] = "#N/A"
+    frame.loc[2950, "vent"] = "nan"
+    path = tmp_path / "tokens.csv"
+    frame.to_csv(path, index=False)
+    names = ["heat", "bill", "meter", "vent"]
+    memory = compute_moments(None, path, engine="pandas", variables=names)
+    streamed = compute_moments(None, path, engine="stream", variables=names, batch_rows=500)
+    streamed.source.close()
+    assert dict(streamed.rows.missing) == dict(memory.rows.missing) == {
+        "heat": 1, "bill": 1, "meter": 3, "vent": 2}
+    assert _relative(streamed.moments.cross, memory.moments.cross) < 1e-12
+
+
 def test_numeric_levels_print_as_in_memory(tmp_path):
     # a numeric categorical with a non-integer value prints every level as a float
     frame = pd.DataFrame({"heat": np.arange(40.0), "bill": np.arange(40.0) ** 1.5,
@@ -579,6 +600,13 @@ def test_error_every_row_missing_as_in_memory():
         compute_moments(STUDY, frame, engine="stream", variables=VARIABLES, batch_rows=100)
     assert str(streamed.value) == str(memory.value)
     assert "'vent' missing in 500 of 500 rows" in str(streamed.value)
+
+
+def test_error_dask_not_installed(monkeypatch):
+    monkeypatch.setitem(sys.modules, "dask.dataframe", None)     # import now fails
+    with pytest.raises(DataError, match=r"engine dask needs the dask package with its dataframe "
+                                        r"part .*pip install \"causalcheck\[dask\]\""):
+        compute_moments(None, _frame(rows=100), engine="dask", variables=["heat"])
 
 
 def test_error_unknown_engine():

@@ -13,8 +13,8 @@ from report_documents import audit_document, plan_document, vet_document
 from causalcheck.cli import main
 from causalcheck.commands import common
 from causalcheck.errors import OutputError
-from causalcheck.report import bundle as bundle_module
 from causalcheck.report import figures
+from causalcheck.report import files as files_module
 from causalcheck.report.bundle import MANIFEST, write_bundle
 from causalcheck.report.files import MARKER
 
@@ -93,24 +93,49 @@ def test_interrupt_while_rendering_leaves_no_report(tmp_path, monkeypatch):
     assert sorted(p.name for p in folder.iterdir()) == [MARKER]
 
 
-def test_interrupt_while_writing_leaves_no_half_file(tmp_path, monkeypatch):
-    written = []
-    real = bundle_module.write_atomic
+def _folder_bytes(folder: Path) -> dict[str, bytes]:
+    return {p.name: p.read_bytes() for p in sorted(folder.iterdir())}
 
-    def flaky(path, content):
-        if Path(path).name == "report.md":
+
+@pytest.mark.parametrize("stop_at", ["sensitivity.png", "report.md", MANIFEST])
+def test_interrupt_while_writing_keeps_the_old_report_whole(tmp_path, monkeypatch, stop_at):
+    # a re-run into an old report folder, interrupted while its files are being written: every
+    # file is first written under a temporary name, so the folder keeps the old report in full
+    # (never new figures beside the old report.html) and no temporary file is left
+    folder = tmp_path / "out"
+    write_bundle(folder, audit_document(), kind="audit")
+    before = _folder_bytes(folder)
+    staged = []
+    real = files_module._stage
+
+    def interrupted(path, content):
+        if Path(path).name == stop_at:
             raise KeyboardInterrupt
-        written.append(Path(path).name)
+        staged.append(Path(path).name)
         return real(path, content)
 
-    monkeypatch.setattr(bundle_module, "write_atomic", flaky)
+    monkeypatch.setattr(files_module, "_stage", interrupted)
+    changed = dict(vet_document(), estimate=2.5)          # a different report, other figures
+    with pytest.raises(KeyboardInterrupt):
+        write_bundle(folder, changed, kind="vet")
+    assert staged                                         # it was interrupted midway
+    assert _folder_bytes(folder) == before
+    assert not [p for p in folder.iterdir() if p.name.endswith(".tmp")]
+
+
+def test_interrupt_while_writing_a_new_folder_leaves_no_report(tmp_path, monkeypatch):
+    real = files_module._stage
+
+    def interrupted(path, content):
+        if Path(path).name == "report.html":
+            raise KeyboardInterrupt
+        return real(path, content)
+
+    monkeypatch.setattr(files_module, "_stage", interrupted)
     folder = tmp_path / "out"
     with pytest.raises(KeyboardInterrupt):
         write_bundle(folder, vet_document(), kind="vet")
-    # files before the interruption are whole; the report itself was never written
-    assert not (folder / "report.html").exists() and not (folder / "report.md").exists()
-    assert not [p for p in folder.iterdir() if p.name.endswith(".tmp")]
-    json.loads((folder / "result.json").read_text())
+    assert sorted(p.name for p in folder.iterdir()) == [MARKER]
 
 
 # --------------------------------------------------------------------------------------------

@@ -122,6 +122,27 @@ def test_report_is_self_contained_and_in_reading_order(kind):
         < markdown.index("## Methods and references")
 
 
+def test_wording_section_escapes_the_report_sentences_and_sits_after_sensitivity():
+    document = audit_document()
+    document["wording"] = {
+        "reviewed": True, "source": "report.md", "supported_level": 3,
+        "supported_grade": "possible-cause", "format": "markdown", "lines": 4, "sentences": 3,
+        "evidence": {"design": "observational", "robustness_value": 0.3},
+        "claims": [{"line": 2, "sentence": f"The rebate {EVIL} cut water use.", "level": 5,
+                    "grade": "causal", "prescriptive": True,
+                    "verdict": "stronger than the evidence",
+                    "suggestion": f"The rebate {EVIL} may have cut water use."}],
+        "notes": []}
+    page = render_html(document, images={})
+    assert EVIL not in page and "The rebate &lt;script&gt;alert(1)&lt;/script&gt; cut" in page
+    ids = parse(page).section_ids
+    assert ids.index("sensitivity") < ids.index("wording") < ids.index("cautions")
+    assert "<td>5 causal, advice</td><td>stronger than the evidence</td>" in page
+    markdown = render_markdown(document, figures=[])
+    assert EVIL not in markdown and "| 2 | The rebate &lt;script>alert(1)&lt;/script> cut" \
+        in markdown
+
+
 def test_methods_section_cites_in_full():
     page = render_html(audit_document(), images={})
     assert "Cinelli, C., &amp; Hazlett, C. (2020). Making sense of sensitivity: extending " \

@@ -244,3 +244,124 @@ def test_wording_verdict_is_the_reviews_own_paragraph():
         document = attach_context(review.to_dict(), study)
         assert build_verdict(document).text == review.verdict_paragraph()
         assert unexplained_numbers(build_verdict(document).text, document) == []
+
+
+# --------------------------------------------------------------------------------------------
+# The extreme case, ratio measures, names kept as written, the report's own wording
+
+
+def _vet_document(reported, **options) -> dict:
+    from causalcheck.vet import vet
+
+    return vet(reported, **options).to_dict()
+
+
+def test_extreme_case_sentence_uses_the_value_to_a_nonzero_threshold():
+    # Cinelli & Hazlett (2020), Sec. 4 (from memory): a confounder explaining all the outcome's
+    # residual variance brings the estimate to θ when its partial R² with the treatment is
+    # f_θ²/(1 + f_θ²), f_θ = |estimate − θ| / (se √dof); only for θ = 0 is that the
+    # treatment's partial R² with the outcome, t²/(t² + dof).
+    from causalcheck.study import Reported
+
+    estimate, se, dof, theta = 1.95, 0.60, 835, 0.5
+    document = _vet_document(Reported(estimate=estimate, std_error=se, dof=dof),
+                             threshold=theta)
+    f2 = ((estimate - theta) / (se * math.sqrt(dof))) ** 2
+    expected = f2 / (1 + f2)                                   # 0.694...%
+    partial_r2 = (estimate / se) ** 2 / ((estimate / se) ** 2 + dof)   # 1.25%
+    text = build_verdict(document).text
+    sentence = next(s for s in build_verdict(document).sentences
+                    if s.startswith("Even a confounder that explained all"))
+    assert f"at least {percent(expected, 3)} of the treatment's" in sentence
+    assert percent(expected, 3) == "0.695%" and percent(partial_r2, 3) == "1.25%"
+    assert "1.25%" not in text and sentence.endswith("to bring the estimate to 0.5.")
+    # without the extreme-case block, partial_r2 stands in only at a threshold of 0
+    bare = {key: document[key] for key in ("schema", "estimate", "std_error", "t", "dof",
+                                           "partial_r2", "robustness_value",
+                                           "robustness_value_ci", "threshold")}
+    assert "explained all" not in build_verdict(bare).text
+    assert "at least 1.25% of" in build_verdict(dict(bare, threshold=0.0)).text
+
+
+def test_extreme_share_reads_the_audit_block_too():
+    from causalcheck.report.verdict import extreme_share
+
+    block = {"partial_r2": 0.0125, "extreme_r2dz": 0.0069, "threshold": 0.5}
+    assert extreme_share(block, threshold=0.5) == 0.0069
+    assert extreme_share({"partial_r2": 0.0125}, threshold=0.5) is None
+
+
+def test_ratio_measure_never_shows_the_log_scale_se_as_the_ratios():
+    from causalcheck.study import Reported
+
+    document = _vet_document(Reported(estimate=1.8, std_error=0.2, measure="risk_ratio"))
+    assert document["scale"] == "log"
+    sentence = build_verdict(document).sentences[0]
+    # the interval of the ratio: exp(log 1.8 ± 1.96 × 0.2), normal quantile (common practice)
+    assert "95% CI 1.22 to 2.66, computed from the standard error of the log ratio" in sentence
+    assert "t of the log ratio = 2.94" in sentence and "0.2" not in sentence
+    # a document without the interval names the scale of its standard error
+    no_ci = dict(document, ci_low=None, ci_high=None)
+    sentence = build_verdict(no_ci).sentences[0]
+    assert "log-scale standard error 0.2" in sentence
+    assert re.search(r"(?<!log-scale )standard error", sentence) is None
+
+
+def test_sentences_starting_with_a_variable_name_keep_its_case(tmp_path, capsys):
+    from causalcheck.report.context import upper_first
+
+    study = tmp_path / "study.toml"
+    study.write_text('[study]\ntreatment = "offer"\noutcome = "income"\n'
+                     '[graph]\nedges = ["offer -> raise_later", "raise_later -> income",'
+                     ' "offer -> income", "skills -> offer", "skills -> income"]\n'
+                     '[controls]\nused = ["raise_later", "skills"]\n')
+    document = _json(capsys, "controls", str(study))
+    assert "raise_later is a mediator" in document["verdict"]
+    assert "Raise_later" not in document["verdict"]
+    assert upper_first("skills is a confounder", identifiers={"skills"}) == \
+        "skills is a confounder"
+    assert upper_first("the declared controls are valid") == "The declared controls are valid"
+
+
+def test_report_notes_keep_identifiers_lowercase():
+    from causalcheck.report.markdown import render_markdown
+    from causalcheck.study import Reported
+
+    document = _vet_document(Reported(estimate=1.8, std_error=0.2, measure="risk_ratio"))
+    markdown = render_markdown(document)
+    assert "- std_error, t and log_estimate are on the log scale" in markdown
+    assert "Std_error" not in markdown
+
+
+WORDING_BLOCK = {
+    "reviewed": True, "source": "report.md", "supported_level": 2, "supported_grade": "hedged",
+    "evidence": {"design": "observational", "robustness_value": 0.04}, "sentences": 9,
+    "claims": [{"line": 1, "sentence": "X cut Y.", "level": 5, "grade": "causal",
+                "prescriptive": False, "verdict": "stronger than the evidence",
+                "suggestion": "X was associated with lower Y."},
+               {"line": 4, "sentence": "X was linked to Y.", "level": 1,
+                "grade": "association", "prescriptive": False, "verdict": "supported",
+                "suggestion": None}],
+    "notes": []}
+
+
+def test_vet_and_audit_verdicts_count_the_overreaching_sentences():
+    for document in (vet_document(), audit_document()):
+        verdict = build_verdict(dict(document, wording=WORDING_BLOCK))
+        sentence = next(s for s in verdict.sentences if s.startswith("In the report text"))
+        assert sentence == ("In the report text, 1 of the 2 sentences that link the treatment "
+                            "and the outcome claims more than an observational design with "
+                            "robustness value 0.04 supports (up to level 2, hedged); the "
+                            "wording section suggests a rewording.")
+        # one sentence, just before the next step, which stays last
+        assert verdict.sentences[-1] == verdict.next_step
+        assert verdict.sentences[-2] == sentence
+        assert sentence in verdict.findings
+    supported = dict(WORDING_BLOCK, claims=[WORDING_BLOCK["claims"][1]])
+    text = build_verdict(dict(vet_document(), wording=supported)).text
+    assert "1 sentence links the treatment and the outcome, and it claims no more than" in text
+    unread = {"reviewed": False, "error": "text file 'x.md' does not exist", "claims": None,
+              "supported_level": None}
+    text = build_verdict(dict(vet_document(), wording=unread)).text
+    assert "could not be reviewed; the wording section says why" in text
+    assert "In the report text" not in build_verdict(vet_document()).text

@@ -38,6 +38,7 @@ from causalcheck.wording import (
     review_text,
     split_sentences,
     study_terms,
+    wording_block,
 )
 
 DATA = Path(__file__).parent / "data"
@@ -671,8 +672,10 @@ def test_review_for_study_without_report_text_is_none(tmp_path):
 def test_error_report_text_missing(tmp_path):
     study = make_study(tmp_path)
     (tmp_path / "report.md").unlink()
+    # the path of report_text is relative to the study file, and the message says so
     with pytest.raises(TextFileError, match=r"\[study\].report_text in study file '.*study.toml'"
-                                            r": text file '.*report.md' does not exist"):
+                                            r" names '.*report.md', which does not exist; the "
+                                            r"path is relative to the study file's folder"):
         review_for_study(study, 0.1)
 
 
@@ -737,3 +740,39 @@ def test_error_lexicon_file_missing(tmp_path):
     with pytest.raises(LexiconError, match=r"'.*nope.toml' has 1 problem:\n  - file: does not "
                                            r"exist; check the path given to --lexicon"):
         load_lexicon(tmp_path / "nope.toml")
+
+
+def test_wording_errors_live_in_errors_and_are_re_exported():
+    from causalcheck import errors, wording
+
+    for name in ("WordingError", "TextFileError", "LexiconError"):
+        assert getattr(wording, name) is getattr(errors, name)
+        assert name in errors.__all__ and name in wording.__all__
+    assert issubclass(errors.TextFileError, errors.CausalCheckError)
+    assert issubclass(errors.LexiconError, errors.WordingError)
+
+
+def test_wording_block_for_audit_and_vet_reports(tmp_path):
+    study = make_study(tmp_path)
+    block = wording_block(study, 0.04)
+    review = review_for_study(study, 0.04)
+    assert block["reviewed"] is True and block["error"] is None
+    assert block["claims"] == [c.to_dict() for c in review.claims]
+    assert block["supported_level"] == review.evidence.supported_level == 2
+    assert block["evidence"]["robustness_value"] == 0.04
+    assert block["study_claim"]["verdict"] == STRONGER
+    (tmp_path / "none").mkdir()
+    assert wording_block(make_study(tmp_path / "none", report=None), 0.04) is None
+
+
+def test_wording_block_turns_an_unreadable_text_into_a_note(tmp_path):
+    study = make_study(tmp_path)
+    (tmp_path / "report.md").unlink()
+    block = wording_block(study, 0.2)
+    assert block["reviewed"] is False and block["claims"] is None
+    assert block["supported_level"] is None
+    assert "[study].report_text in study file" in block["error"]
+    assert "report.md', which does not exist; the path is relative to the study file's " \
+           "folder" in block["error"]
+    (tmp_path / "report.md").write_bytes(b"%PDF-1.4 binary")
+    assert "is a PDF document" in wording_block(study, 0.2)["error"]

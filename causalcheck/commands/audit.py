@@ -17,7 +17,9 @@ from ..report.bundle import write_bundle
 from ..report.cautions import caution_texts
 from ..report.context import attach_context
 from ..report.numbers import count, interval, is_number, p_value, percent, significant
+from ..report.text import wording_lines
 from ..report.verdict import audit_verdict
+from ..wording import wording_block
 from .common import GateResult, add_gate_options, add_output_options, emit
 
 __all__ = ["document_of", "gates_for", "register", "render_markdown", "render_text", "run"]
@@ -42,8 +44,18 @@ def register(subparsers: Any) -> None:
 
 
 def document_of(result: AuditResult) -> dict[str, Any]:
-    """The JSON document: the audit contract plus the study context and the cautions."""
+    """The JSON document: the audit contract plus the study context and the cautions.
+
+    With ``[study].report_text``, ``wording`` holds the review of the report's own text
+    against the robustness value of the audit (``sensitivity.robustness_value``).
+    """
     document = attach_context(result.to_dict(), result.study)
+    sensitivity = document.get("sensitivity")
+    robustness_value = sensitivity.get("robustness_value") \
+        if isinstance(sensitivity, Mapping) else None
+    wording = wording_block(result.study, robustness_value)
+    if wording is not None:
+        document["wording"] = wording
     document["cautions"] = caution_texts(document)
     return document
 
@@ -276,6 +288,9 @@ def render_text(result: AuditResult, *, quiet: bool = False,
             lines += textwrap.wrap(item, width=96, initial_indent="- ", subsequent_indent="  ")
     for heading, headers, rows, numeric in _sections(result):
         lines += ["", heading, *_table(headers, rows, numeric)]
+    wording = wording_lines(document, width=96)
+    if wording:
+        lines += ["", *wording]
     if result.notes:
         lines += ["", "Notes"]
         for note in result.notes:

@@ -20,7 +20,7 @@ from ..report.verdict import controls_verdict
 from ..study import Study, load_study
 from .common import GateResult, add_output_options, emit
 
-__all__ = ["register", "render_markdown", "render_text", "run", "verdict_lines"]
+__all__ = ["register", "render_text", "run", "verdict_lines"]
 
 WIDTH = 96
 
@@ -87,20 +87,6 @@ def run(args: argparse.Namespace) -> int:
 
 def _braced(names: Sequence[str]) -> str:
     return "{" + ", ".join(names) + "}"
-
-
-def _listing(result: Identification, names: Sequence[str]) -> str:
-    """Labels in plain words: ``"Household income and Region"``."""
-    shown = [result.label(n) for n in names]
-    if not shown:
-        return "nothing"
-    if len(shown) == 1:
-        return shown[0]
-    return ", ".join(shown[:-1]) + " and " + shown[-1]
-
-
-def _set_words(names: Sequence[str]) -> str:
-    return _braced(names) if names else "the empty set (no adjustment)"
 
 
 def _named(result: Identification, name: str) -> str:
@@ -232,58 +218,4 @@ def render_text(result: Identification, study: Study | None = None, *,
         out.append("Notes")
         for note in result.notes:
             out.extend(_wrap(f"- {note}"))
-    return "\n".join(out) + "\n"
-
-
-def _md_cell(text: str) -> str:
-    return text.replace("|", "\\|")
-
-
-def _md_table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> list[str]:
-    lines = ["| " + " | ".join(header) + " |", "| " + " | ".join("---" for _ in header) + " |"]
-    lines.extend("| " + " | ".join(_md_cell(str(c)) for c in row) + " |" for row in rows)
-    return lines
-
-
-def render_markdown(result: Identification, study: Study | None = None) -> str:
-    """The same report as Markdown (for ``--out``)."""
-    title = study.title if study is not None and study.title else ""
-    out = [f"# Controls check{': ' + title if title else ''}", "",
-           f"Effect of {_named(result, result.treatment)} on {_named(result, result.outcome)}.",
-           "", "## Verdict", ""]
-    previous_bullet = False
-    for line in verdict_lines(result):
-        bullet = line.startswith("- ")
-        if out[-1] != "" and not (bullet and previous_bullet):
-            out.append("")
-        out.append(line)
-        previous_bullet = bullet
-    out.append("")
-    out += ["## Variables", ""]
-    out += _md_table(["variable", "measured", "control", "role", "label"],
-                     _variable_rows(result))
-    out += ["", "## Non-causal paths", ""]
-    if result.biasing_paths:
-        header = ["path", "unadjusted"] + (["with declared controls"]
-                                           if result.controls is not None else [])
-        rows = [[f"`{p.text}`", _state(p.open_unadjusted)]
-                + ([_state(p.open_given_controls)] if result.controls is not None else [])
-                for p in result.biasing_paths]
-        out += _md_table(header, rows)
-    else:
-        out.append("None: every path between treatment and outcome is causal.")
-    out += ["", "## Minimal valid adjustment sets", ""]
-    if result.minimal_sets:
-        out += [f"- {_braced(s) if s else '{} (adjust for nothing)'}"
-                for s in result.minimal_sets]
-    else:
-        out.append("None among the measured variables.")
-        for group in result.measure_to_identify:
-            out.append(f"- measuring {_braced(group)} would make the effect identifiable")
-    if result.implications:
-        out += ["", "## Testable implications", ""]
-        out += [f"- `{i.text()}`" for i in result.implications]
-    if result.notes:
-        out += ["", "## Notes", ""]
-        out += [f"- {n}" for n in result.notes]
     return "\n".join(out) + "\n"

@@ -8,24 +8,21 @@ options, renders the verdict and the table, and writes ``--out``.
 from __future__ import annotations
 
 import argparse
-import html
-import io
 import math
 import sys
-from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
 from ..plan import PlanOption, PlanResult, plan
-from ..report.context import attach_context
 from ..report.bundle import write_bundle
+from ..report.context import attach_context
 from ..report.numbers import fixed, percent, significant
 from ..report.verdict import plan_verdict
 from ..simulate import SimulationResult
 from ..study import load_study
 from .common import add_output_options, emit
 
-__all__ = ["register", "render_markdown", "render_text", "run", "verdict"]
+__all__ = ["register", "render_text", "run", "verdict"]
 
 _TABLE_ROWS = 20
 
@@ -85,19 +82,6 @@ def run(args: argparse.Namespace) -> int:
 # Words
 
 
-def _list(names: Sequence[str]) -> str:
-    names = list(names)
-    if not names:
-        return ""
-    if len(names) == 1:
-        return names[0]
-    return ", ".join(names[:-1]) + " and " + names[-1]
-
-
-def _set(names: Sequence[str]) -> str:
-    return _list(names) if names else "nothing"
-
-
 def _n(value: float, decimals: int, *, sign: bool = False) -> str:
     return fixed(value, decimals, sign=sign)
 
@@ -115,39 +99,6 @@ def verdict(result: PlanResult, *, document: dict[str, Any] | None = None) -> st
     built from ``result.to_dict()``.
     """
     return plan_verdict(document if document is not None else result.to_dict()).text
-
-
-def _how_sure(result: PlanResult, option: PlanOption, d: int, level: str) -> str:
-    """"at n = 2,000 its standard error is ... and a 95% interval excludes zero in ..."."""
-    text = (f"at n = {result.n:,} its standard error is {_n(option.std_error, d)} (RMSE "
-            f"{_n(option.rmse, d)})")
-    null_effect = abs(result.true_effect) < 1e-12
-    if option.valid:
-        if null_effect:
-            return text + (f" and, the true effect being zero under these strengths, a {level} "
-                           f"interval wrongly excludes zero in {_share(option.power)}")
-        return text + f" and a {level} interval excludes zero in {_share(option.power)}"
-    if option.coverage >= 1 - result.alpha - 0.01:
-        text += (f"; the bias is small against that error, so a {level} interval still covers "
-                 f"the true effect in {_share(option.coverage)}")
-    else:
-        text += (f"; because of the bias a {level} interval covers the true effect in only "
-                 f"{_share(option.coverage)}")
-    if null_effect:
-        return text + (f", and excludes zero, although the true effect is zero, in "
-                       f"{_share(option.power)}")
-    return text + f" and excludes zero in {_share(option.power)}"
-
-
-def _share(power: float) -> str:
-    """A probability for a sentence: "about 62% of studies", "nearly all studies"."""
-    if math.isnan(power):
-        return "an unknown share of studies"
-    if power > 0.995:
-        return "nearly all studies"
-    if power < 0.005:
-        return "almost no studies"
-    return f"about {percent(power)} of studies"
 
 
 def _header(result: PlanResult) -> list[str]:
@@ -267,87 +218,3 @@ def render_text(result: PlanResult, *, quiet: bool = False,
     if result.notes:
         lines += ["", "Notes:"] + [f"  - {note}" for note in result.notes]
     return "\n".join(lines)
-
-
-def render_markdown(result: PlanResult) -> str:
-    """The report as Markdown (``--out``)."""
-    head, rows, hidden = _option_rows(result)
-    lines = [f"# Study plan: {result.treatment} → {result.outcome}", "",
-             _header(result)[1], "", verdict(result), "", "## Options", "",
-             "| " + " | ".join(h or "flags" for h in head) + " |",
-             "|" + "|".join("---" for _ in head) + "|"]
-    lines += ["| " + " | ".join(cell.replace("|", "\\|") for cell in row) + " |"
-              for row in rows]
-    if hidden:
-        lines += ["", f"{hidden} more options are in result.json."]
-    lines += ["", "Flags: * recommended, P on the Pareto front, B measure nothing more.", "",
-              "## Assumed strengths", ""] + [f"- {line.strip()}"
-                                             for line in _strength_lines(result)]
-    if result.simulation is not None:
-        head_s, rows_s = _simulation_lines(result.simulation, result)
-        lines += ["", "## Simulation", "", "| " + " | ".join(head_s) + " |",
-                  "|" + "|".join("---" for _ in head_s) + "|"]
-        lines += ["| " + " | ".join(row) + " |" for row in rows_s]
-    if result.notes:
-        lines += ["", "## Notes", ""] + [f"- {note}" for note in result.notes]
-    return "\n".join(lines) + "\n"
-
-
-def render_html(result: PlanResult) -> str:
-    """A self-contained HTML page of the same content (``--out``)."""
-    head, rows, hidden = _option_rows(result)
-    esc = html.escape
-
-    def table(header: list[str], body: list[list[str]]) -> str:
-        top = "".join(f"<th>{esc(h)}</th>" for h in header)
-        cells = "".join("<tr>" + "".join(f"<td>{esc(c)}</td>" for c in row) + "</tr>"
-                        for row in body)
-        return f"<table><thead><tr>{top}</tr></thead><tbody>{cells}</tbody></table>"
-
-    parts = [f"<h1>Study plan: {esc(result.treatment)} → {esc(result.outcome)}</h1>",
-             f"<p>{esc(_header(result)[1])}</p>", (f"<p><strong>{esc(verdict(result))}"
-             "</strong></p>"), "<h2>Options</h2>", table(head, rows),
-             "<p>Flags: * recommended, P on the Pareto front, B measure nothing more."
-             + (f" {hidden} more options are in result.json." if hidden else "") + "</p>",
-             '<img src="pareto.png" alt="Cost against RMSE of each plan">',
-             "<h2>Assumed strengths</h2><ul>"
-             + "".join(f"<li>{esc(line.strip())}</li>" for line in _strength_lines(result))
-             + "</ul>"]
-    if result.simulation is not None:
-        parts += ["<h2>Simulation</h2>", table(*_simulation_lines(result.simulation, result))]
-    if result.notes:
-        parts += ["<h2>Notes</h2><ul>"
-                  + "".join(f"<li>{esc(n)}</li>" for n in result.notes) + "</ul>"]
-    style = ("body{font-family:sans-serif;max-width:60em;margin:2em auto;line-height:1.4}"
-             "table{border-collapse:collapse}td,th{border:1px solid #ccc;padding:.2em .5em}")
-    return ("<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\">"
-            f"<title>Study plan</title><style>{style}</style></head><body>"
-            + "\n".join(parts) + "</body></html>\n")
-
-
-def _pareto_figure(result: PlanResult) -> bytes | None:
-    """Cost against RMSE, valid plans filled, the Pareto front joined (PNG bytes)."""
-    from matplotlib.figure import Figure
-
-    figure = Figure(figsize=(6, 4))
-    axes = figure.add_subplot()
-    for valid, marker, label in ((True, "o", "unbiased (valid set)"),
-                                 (False, "x", "biased")):
-        chosen = [o for o in result.options if o.valid == valid]
-        if chosen:
-            axes.scatter([o.cost for o in chosen], [o.rmse for o in chosen], marker=marker,
-                         label=label)
-    front = sorted((o for o in result.options if o.pareto), key=lambda o: o.cost)
-    axes.step([o.cost for o in front], [o.rmse for o in front], where="post", color="grey",
-              linewidth=1, label="Pareto front")
-    rec = result.recommended
-    axes.annotate("recommended", (rec.cost, rec.rmse), textcoords="offset points",
-                  xytext=(8, 8))
-    if result.budget is not None:
-        axes.axvline(result.budget, linestyle=":", color="grey", label="budget")
-    axes.set_xlabel("cost of the measurement plan")
-    axes.set_ylabel(f"RMSE at n = {result.n:,} (SD units)")
-    axes.legend(frameon=False)
-    buffer = io.BytesIO()
-    figure.savefig(buffer, format="png", dpi=100, bbox_inches="tight")
-    return buffer.getvalue()

@@ -23,11 +23,13 @@ from ..errors import ReportedError
 from ..report.bundle import write_bundle
 from ..report.context import attach_context
 from ..report.files import write_atomic
-from ..report.verdict import vet_verdict
 from ..report.numbers import count, interval, is_number, percent, significant
+from ..report.text import wording_lines
+from ..report.verdict import vet_verdict
 from ..reported import apply_overrides
 from ..study import MEASURES, load_study
 from ..vet import VetResult, sweep_to_csv, vet
+from ..wording import wording_block
 from .common import GateResult, add_output_options, emit
 
 __all__ = [
@@ -169,6 +171,11 @@ def run(args: argparse.Namespace) -> int:
                  overrides=notes, overridden=given)
     gates = _gate(args, result)
     document = attach_context(result.to_dict(), study)
+    # the review of [study].report_text against this robustness value (an unreadable text is
+    # a note in the report; only `causalcheck wording` itself refuses it)
+    wording = wording_block(study, document.get("robustness_value")) if study else None
+    if wording is not None:
+        document["wording"] = wording
 
     if args.grid_csv is not None:
         points = args.grid_points or (study.sensitivity.grid_points if study else 101)
@@ -324,6 +331,9 @@ def render_text(result: VetResult, *, quiet: bool = False,
                 ["E-value of the CI limit nearest the null",
                  "n/a" if ev.ci is None else f"{ev.ci:.2f}"]]
         parts += ["", "E-value (VanderWeele & Ding 2017)", _table(["quantity", "value"], rows)]
+    wording = wording_lines(document) if document is not None else []
+    if wording:
+        parts += ["", *wording]
     notes = [n for n in result.notes if n not in result.overrides]
     if notes:
         parts += ["", "Notes"]
@@ -348,15 +358,14 @@ def write_figure(result: VetResult, path: str | Path, *, points: int = 201) -> P
     """
     if result.robustness is None:
         return None
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    # a Figure of its own, not pyplot: no global backend switch, nothing left open
     from matplotlib.colors import TwoSlopeNorm
+    from matplotlib.figure import Figure
 
     grid = result.grid(points)
     b = grid.bounds
-    fig, ax = plt.subplots(figsize=(6, 5), dpi=110)
+    fig = Figure(figsize=(6, 5), dpi=110)
+    ax = fig.add_subplot()
     x, y = np.meshgrid(100 * grid.r2dz, 100 * grid.r2yz, indexing="ij")
     values = b.adjusted_estimate
     low, high = float(np.min(values)), float(np.max(values))
@@ -383,5 +392,4 @@ def write_figure(result: VetResult, path: str | Path, *, points: int = 201) -> P
                  f"{_num(result.threshold)}", fontsize=10)
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png", bbox_inches="tight")
-    plt.close(fig)
     return write_atomic(Path(path), buffer.getvalue())

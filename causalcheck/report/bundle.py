@@ -2,11 +2,13 @@
 
 :func:`write_bundle` first checks the folder (a new or empty folder, or one causalcheck wrote;
 anything else is refused unless ``force``, see :func:`~causalcheck.report.files.
-prepare_output_folder`), then renders everything in memory, and only then writes each file
-atomically (a temporary name and a rename). The HTML report goes last, so a folder with a
-``report.html`` holds a complete report; an interruption while rendering writes nothing but
-the folder's marker. Figures that a previous run wrote into the same folder and this run does
-not are removed, and only those: the folder's manifest lists what causalcheck wrote.
+prepare_output_folder`), then renders everything in memory, and only then writes the files
+as one step (:func:`~causalcheck.report.files.write_all_atomic`): every file is written in full
+under a temporary name first, and only then are all of them renamed into place, the HTML report
+last. An interruption while rendering or writing leaves the folder as it was (a re-run into an
+old report folder never mixes new figures with the old report.html). Figures that a previous
+run wrote into the same folder and this run does not are removed, and only those: the folder's
+manifest lists what causalcheck wrote.
 
 Examples
 --------
@@ -28,7 +30,7 @@ from typing import Any
 
 from .cautions import caution_texts
 from .context import kind_of
-from .files import prepare_output_folder, write_atomic
+from .files import prepare_output_folder, write_all_atomic, write_atomic
 from .jsonout import dumps
 from .verdict import build_verdict
 
@@ -130,18 +132,22 @@ def write_bundle(folder: str | Path, document: Mapping[str, Any], *, kind: str |
     payload = dumps(full)
 
     previous = _previous_files(target)
-    written: list[Path] = []
-    for name, data in images.items():
-        written.append(write_atomic(target / FIGURES[name][0], data))
-    written.append(write_atomic(target / "result.json", payload))
-    written.append(write_atomic(target / "report.md", markdown))
-    written.append(write_atomic(target / "report.html", page))
-    names = [p.name for p in written]
-    for stale in previous:
-        if stale not in names and stale in {f for f, _ in FIGURES.values()}:
-            try:
-                (target / stale).unlink()
-            except OSError:
-                pass
-    write_atomic(target / MANIFEST, json.dumps({"files": names}) + "\n")
+    files: dict[str, str | bytes] = {FIGURES[name][0]: data for name, data in images.items()}
+    files["result.json"] = payload
+    files["report.md"] = markdown
+    files["report.html"] = page
+    names = list(files)
+    figure_files = {f for f, _ in FIGURES.values()}
+    stale = [f for f in previous if f not in names and f in figure_files]
+    # the manifest renamed in with the report still lists the stale figures, so that a run
+    # interrupted before they are removed removes them next time
+    files[MANIFEST] = json.dumps({"files": names + stale}) + "\n"
+    written = write_all_atomic(target, files)[:-1]
+    for name in stale:
+        try:
+            (target / name).unlink()
+        except OSError:
+            pass
+    if stale:
+        write_atomic(target / MANIFEST, json.dumps({"files": names}) + "\n")
     return Bundle(target, tuple(written), tuple(images))

@@ -129,7 +129,9 @@ def cautions_for(document: Mapping[str, Any]) -> tuple[Caution, ...]:
             extra.append(_E_VALUE)
     if kind == "plan":
         extra.append(_PLANNING)
-    if kind == "wording":
+    wording = document.get("wording")
+    if kind == "wording" or (kind in ("audit", "vet") and isinstance(wording, Mapping)
+                             and wording.get("reviewed")):
         extra.append(_WORDING)
     study = document.get("study")
     if isinstance(study, Mapping) and study.get("design") == "randomized":

@@ -16,13 +16,14 @@ Examples
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+import re
+from collections.abc import Collection, Mapping
 from typing import Any
 
 from ..study import Study
 
 __all__ = ["GRAPH_KEYS", "ResultView", "attach_context", "graph_context", "kind_of",
-           "lower_first", "study_context"]
+           "lower_first", "study_context", "upper_first"]
 
 
 def study_context(study: Study) -> dict[str, Any]:
@@ -277,6 +278,14 @@ class ResultView:
     def labels(self, names: Any) -> list[str]:
         return [self.label(str(n)) for n in (names or [])]
 
+    @property
+    def identifiers(self) -> frozenset[str]:
+        """Every variable name the document or its study context knows (for
+        :func:`upper_first`, which must not change a name's case)."""
+        names = set(self.variable_names)
+        names.update(n for n in (self.treatment, self.outcome) if n)
+        return frozenset(names)
+
     # -- the effect's units ----------------------------------------------------------------
     def effect(self, value: Any, digits: int = 3) -> str:
         """An estimate with the outcome's unit: ``"-1.21 m3/month"``."""
@@ -308,3 +317,31 @@ def lower_first(text: str) -> str:
     if len(text) >= 2 and text[0].isupper() and text[1].islower():
         return text[0].lower() + text[1:]
     return text
+
+
+_FIRST_WORD = re.compile(r"[^\s,;:()\[\]'\"]+")
+
+
+def upper_first(text: str, *, identifiers: Collection[str] = ()) -> str:
+    """Upper-case the first letter of a sentence, unless it starts with a name.
+
+    A sentence that starts with one of ``identifiers`` (the study's variable names) or with a
+    word that looks like code (an underscore, a digit, a capital after the first letter) keeps
+    its first word as written: "raise_later is a mediator" must not become "Raise_later".
+
+    >>> upper_first("a biasing path is open"), upper_first("raise_later is a mediator")
+    ('A biasing path is open', 'raise_later is a mediator')
+    >>> upper_first("income is a mediator", identifiers={"income"}), upper_first("iPhone use")
+    ('income is a mediator', 'iPhone use')
+    """
+    if not text or not text[0].islower():
+        return text
+    match = _FIRST_WORD.match(text)
+    word = match.group(0).rstrip(".") if match else ""
+    if word in identifiers or _looks_like_code(word):
+        return text
+    return text[0].upper() + text[1:]
+
+
+def _looks_like_code(word: str) -> bool:
+    return "_" in word or any(c.isdigit() for c in word) or any(c.isupper() for c in word[1:])

@@ -201,6 +201,9 @@ def methods_for(document: Mapping[str, Any]) -> list[Method]:
         methods.append(_IMPLICATIONS)
     if kind == "vet" and document.get("e_value"):
         methods.append(_E_VALUE)
+    wording = document.get("wording")
+    if kind in ("audit", "vet") and isinstance(wording, Mapping) and wording.get("reviewed"):
+        methods.append(_WORDING)
     if kind == "plan":
         methods += [_ADJUSTMENT, _SEM]
         if document.get("range_sweep"):

@@ -13,6 +13,9 @@ Examples
 ...                        "robustness_value_ci": 0.17, "partial_r2": 0.14})
 >>> [section.key for section in report.sections]
 ['claim', 'estimates', 'sensitivity', 'cautions', 'methods']
+
+A vet or audit document with a ``wording`` block (the study names ``[study].report_text``)
+gets a section ``wording``, "Wording of the report", right after the sensitivity analysis.
 """
 
 from __future__ import annotations
@@ -22,7 +25,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from .cautions import cautions_for
-from .context import ResultView
+from .context import ResultView, upper_first
 from .figures import FIGURES, figures_for
 from .numbers import count, interval, is_number, p_value, percent, significant
 from .references import methods_for
@@ -33,6 +36,8 @@ from .verdict import (
     decomposition_parts,
     decomposition_shares,
     decomposition_target,
+    evidence_phrase,
+    supported_phrase,
 )
 
 __all__ = ["KIND_SUBTITLES", "KIND_TITLES", "Bullets", "FigureRef", "Paragraph", "Report",
@@ -501,9 +506,7 @@ def _wording_estimates(view: ResultView) -> Section:
                      f"{claim.get('level', '')} {claim.get('grade') or ''}".strip(),
                      "yes" if claim.get("prescriptive") else "",
                      str(claim.get("verdict") or ""), str(claim.get("suggestion") or "")))
-    blocks: list[Block] = [Paragraph(
-        "Strength scale: 0 no relation stated, 1 association, 2 hedged association, "
-        "3 conditional causal (may, might, could), 4 can cause, 5 causal claim.", "note")]
+    blocks: list[Block] = [Paragraph(_STRENGTH_SCALE, "note")]
     blocks.append(Table(("line", "sentence", "strength", "prescriptive", "verdict",
                          "suggested wording"), tuple(rows),
                         (True, False, False, False, False, False), "Sentences reviewed"))
@@ -635,6 +638,70 @@ def _sensitivity_section(view: ResultView, figures: Sequence[str]) -> Section | 
                    tuple(blocks))
 
 
+_STRENGTH_SCALE = ("Strength scale: 0 no relation stated, 1 association, 2 hedged association, "
+                   "3 conditional causal (may, might, could), 4 can cause, 5 causal claim.")
+
+
+def _claim_rows(claims: Sequence[Mapping[str, Any]]) -> tuple[tuple[str, ...], ...]:
+    rows = []
+    for claim in claims:
+        strength = f"{claim.get('level', '')} {claim.get('grade') or ''}".strip()
+        rows.append((count(claim.get("line")) if is_number(claim.get("line")) else "",
+                     str(claim.get("sentence") or ""),
+                     strength + (", advice" if claim.get("prescriptive") else ""),
+                     str(claim.get("verdict") or ""), str(claim.get("suggestion") or "")))
+    return tuple(rows)
+
+
+def _wording_section(view: ResultView) -> Section | None:
+    """The review of the report's own wording (vet and audit, with ``[study].report_text``)."""
+    block = _mapping(view.get("wording"))
+    if not block:
+        return None
+    title = "Wording of the report"
+    source = str(block.get("source") or "the report text")
+    if not block.get("reviewed"):
+        reason = str(block.get("error") or "it could not be read").rstrip(".")
+        return Section("wording", title, (Paragraph(
+            f"The report text was not reviewed: {reason}. The rest of this report does not "
+            "depend on it.", "note"),))
+    evidence = _mapping(block.get("evidence"))
+    what = ", ".join(x for x in (
+        str(block.get("format") or ""),
+        f"{count(block['lines'])} lines" if is_number(block.get("lines")) else "",
+        f"{count(block['sentences'])} sentences" if is_number(block.get("sentences")) else "")
+        if x)
+    text = f"Text reviewed: {source}" + (f" ({what})" if what else "") + "."
+    supported = supported_phrase(block)
+    if supported:
+        text += f" Evidence: {evidence_phrase(evidence)} supports wording {supported}."
+    cutoff = _mapping(evidence.get("cutoffs")).get("observational_rv_at_least")
+    blocks: list[Block] = [Paragraph(text), Paragraph(
+        _STRENGTH_SCALE + " The cut-offs are common practice: a randomised design supports "
+        "causal wording (5); an observational one with a robustness value of at least "
+        f"{significant(cutoff if is_number(cutoff) else 0.1)} supports \"may\" wording (3), "
+        "otherwise association wording (2).", "note")]
+    study_claim = _mapping(block.get("study_claim"))
+    if study_claim.get("verdict") and study_claim.get("verdict") != "supported":
+        text = (f"The claim under test is graded {study_claim.get('level')} "
+                f"({study_claim.get('grade')}): {study_claim['verdict']}.")
+        if study_claim.get("suggestion"):
+            text += f" At the supported strength: \"{study_claim['suggestion']}\""
+        blocks.append(Paragraph(text))
+    claims = [c for c in block.get("claims") or [] if isinstance(c, Mapping)]
+    if claims:
+        blocks.append(Table(("line", "sentence", "strength", "verdict", "suggested wording"),
+                            _claim_rows(claims), (True, False, False, False, False),
+                            "Sentences that link the treatment and the outcome"))
+    else:
+        blocks.append(Paragraph("No sentence of the text links the treatment and the outcome."))
+    notes = [upper_first(str(n), identifiers=view.identifiers)
+             for n in block.get("notes") or [] if n]
+    if notes:
+        blocks.append(Bullets(tuple(dict.fromkeys(notes))))
+    return Section("wording", title, tuple(blocks))
+
+
 def _independence_text(view: ResultView, test: Mapping[str, Any]) -> str:
     given = test.get("given") or []
     text = f"{view.label(str(test.get('left')))} ⊥ {view.label(str(test.get('right')))}"
@@ -685,7 +752,8 @@ def _tests_section(view: ResultView) -> Section | None:
 
 
 def _notes_section(view: ResultView) -> Section | None:
-    notes = [str(n)[0].upper() + str(n)[1:] for n in view.get("notes") or [] if n]
+    notes = [upper_first(str(n), identifiers=view.identifiers)
+             for n in view.get("notes") or [] if n]
     if not notes:
         return None
     return Section("notes", "Notes", (Bullets(tuple(dict.fromkeys(notes))),))
@@ -718,6 +786,10 @@ def build_report(document: Mapping[str, Any], *, figures: Sequence[str] | None =
         section = builder(view, figures)
         if section is not None:
             sections.append(section)
+    if kind in ("audit", "vet"):
+        wording = _wording_section(view)
+        if wording is not None:
+            sections.append(wording)
     for section in (_tests_section(view), _notes_section(view)):
         if section is not None:
             sections.append(section)

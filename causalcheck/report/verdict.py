@@ -42,7 +42,7 @@ from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
-from .context import ResultView, lower_first
+from .context import ResultView, lower_first, upper_first
 from .numbers import count, fixed, interval, is_number, percent, significant
 
 __all__ = [
@@ -55,9 +55,13 @@ __all__ = [
     "decomposition_parts",
     "decomposition_shares",
     "decomposition_target",
+    "evidence_phrase",
+    "extreme_share",
     "plan_verdict",
     "strongest_benchmark",
+    "supported_phrase",
     "vet_verdict",
+    "wording_sentence",
     "wording_verdict",
 ]
 
@@ -119,11 +123,13 @@ def _listing(items: Sequence[str], *, conjunction: str = "and") -> str:
     return f"{', '.join(items[:-1])} {conjunction} {items[-1]}"
 
 
-def _sentence(text: str) -> str:
+def _sentence(text: str, view: ResultView | None = None) -> str:
+    """``text`` as a sentence: a capital first letter (unless it starts with a variable name or
+    another identifier, whose case is kept) and a full stop."""
     text = text.strip()
     if not text:
         return text
-    text = text[0].upper() + text[1:]
+    text = upper_first(text, identifiers=view.identifiers if view is not None else ())
     return text if text.endswith((".", "!", "?", '"')) else text + "."
 
 
@@ -345,7 +351,7 @@ def _robustness_sentences(view: ResultView, sensitivity: Mapping[str, Any],
         text += (f"; the strongest measured covariate, {view.label(strongest['variable'])}, "
                  f"explains {percent(strongest['shown_r2_treatment'])} of the treatment's and "
                  f"{percent(strongest['shown_r2_outcome'])} of the outcome's remaining variance")
-    sentences.append(_sentence(text))
+    sentences.append(_sentence(text, view))
     comparison = _benchmark_comparison(view, sensitivity, estimate=estimate)
     if comparison:
         sentences.append(comparison)
@@ -554,7 +560,7 @@ def _estimates_sentence(view: ResultView) -> str | None:
                          f"{view.effect(adjusted['estimate'])}{ci}")
     if pieces:
         return f"{pieces[0]}; {adjusted_text}."
-    return _sentence(adjusted_text)
+    return _sentence(adjusted_text, view)
 
 
 def _bad_control_sentence(view: ResultView) -> str | None:
@@ -628,6 +634,9 @@ def audit_verdict(document: Mapping[str, Any]) -> Verdict:
     implications = _implications_sentence(view)
     if implications:
         sentences.append(implications)
+    wording = wording_sentence(document)
+    if wording:
+        sentences.append(wording)
     step = _next_step(view, identifiable=identifiable)
     sentences.append(step)
     return Verdict("audit", tuple(sentences), step)
@@ -681,7 +690,7 @@ def controls_verdict(document: Mapping[str, Any]) -> Verdict:
         for problem in controls.get("problems") or []:
             if isinstance(problem, Mapping):
                 detail = str(problem.get("detail") or _problem_phrase(view, problem)).strip()
-                details.append(_sentence(detail))
+                details.append(_sentence(detail, view))
         sentences.append(" ".join([head] + details))
     if document.get("has_causal_path") is False:
         sentences.append(f"The graph has no directed path from {t} to {y}, so it says {t} has "
@@ -749,10 +758,14 @@ def _vet_estimate_sentence(view: ResultView) -> str | None:
     if is_number(low) and is_number(high):
         level = document.get("ci_level")
         level_text = percent(level) if is_number(level) else view.confidence
-        computed = "" if document.get("ci_given", True) else ", computed from its standard error"
+        computed = "" if document.get("ci_given", True) else (
+            ", computed from the standard error of the log ratio" if is_ratio
+            else ", computed from its standard error")
         details.append(f"{level_text} CI {interval(low, high, like=estimate)}{computed}")
     elif is_number(document.get("std_error")):
-        details.append(f"standard error {significant(document['std_error'])}")
+        # for a ratio the standard error is that of the log ratio, never of the ratio itself
+        scale = "log-scale " if is_ratio or document.get("scale") == "log" else ""
+        details.append(f"{scale}standard error {significant(document['std_error'])}")
     t_value = document.get("t")
     if is_number(t_value):
         scale = " of the log ratio" if is_ratio else ""
@@ -798,15 +811,39 @@ def _vet_robustness_sentences(view: ResultView) -> list[str]:
                 text += (f"; one explaining {percent(rv_ci, 3)} of both would make the {level} "
                          f"confidence interval include {theta}")
         sentences.append(text + ".")
-    extreme = _mapping(document.get("extreme_case")).get("r2dz_to_threshold")
-    if not is_number(extreme) and view.threshold == 0:
-        extreme = document.get("partial_r2")
+    extreme = extreme_share(document, threshold=view.threshold)
     if is_number(extreme):
         sentences.append(
             "Even a confounder that explained all the remaining variance of the outcome would "
             f"have to explain at least {percent(extreme, 3)} of the treatment's remaining "
             f"variance to bring the estimate to {theta}.")
     return sentences
+
+
+def extreme_share(block: Mapping[str, Any], *, threshold: float) -> float | None:
+    """The treatment's share of remaining variance that even a confounder explaining all the
+    outcome's remaining variance needs to bring the estimate to ``threshold``.
+
+    Read from ``extreme_r2dz`` (audit's ``sensitivity`` block) or
+    ``extreme_case.r2dz_to_threshold`` (vet): f_θ²/(1 + f_θ²), with f_θ the partial Cohen's f of
+    the estimate measured from the threshold (Cinelli & Hazlett 2020, Sec. 4). It equals the
+    treatment's partial R² with the outcome only when the threshold is 0, so ``partial_r2``
+    stands in for it only then.
+
+    >>> extreme_share({"partial_r2": 0.0125}, threshold=0.0)
+    0.0125
+    >>> extreme_share({"partial_r2": 0.0125}, threshold=0.5) is None
+    True
+    >>> extreme_share({"partial_r2": 0.0125, "extreme_case": {"r2dz_to_threshold": 0.0069}},
+    ...               threshold=0.5)
+    0.0069
+    """
+    value = block.get("extreme_r2dz")
+    if not is_number(value):
+        value = _mapping(block.get("extreme_case")).get("r2dz_to_threshold")
+    if not is_number(value) and threshold == 0:
+        value = block.get("partial_r2")
+    return float(value) if is_number(value) else None
 
 
 def _e_value_sentence(view: ResultView) -> str | None:
@@ -852,6 +889,9 @@ def vet_verdict(document: Mapping[str, Any]) -> Verdict:
     e_value = _e_value_sentence(view)
     if e_value:
         sentences.append(e_value)
+    wording = wording_sentence(document)
+    if wording:
+        sentences.append(wording)
     has_graph = any(view.roles(n) for n in view.variable_names)
     if has_graph or isinstance(document.get("controls"), Mapping):
         step = _next_step(view, identifiable=document.get("identifiable"))
@@ -1054,6 +1094,80 @@ _SUPPORTED, _STRONGER, _WEAKER = ("supported", "stronger than the evidence",
                                   "weaker than it could be")
 
 
+def evidence_phrase(evidence: Mapping[str, Any]) -> str:
+    """The evidence a wording review judged against, as a phrase.
+
+    >>> evidence_phrase({"design": "observational", "robustness_value": 0.10629})
+    'an observational design with robustness value 0.106'
+    """
+    if evidence.get("design") == "randomized":
+        return "a randomised design"
+    if not is_number(evidence.get("robustness_value")):
+        return "an observational design without a robustness value"
+    return (f"an observational design with robustness value "
+            f"{significant(evidence['robustness_value'])}")
+
+
+def wording_sentence(document: Mapping[str, Any]) -> str | None:
+    """The vet or audit verdict's one sentence on the report's own wording.
+
+    Reads the ``wording`` block (:func:`causalcheck.wording.wording_block`): how many of the
+    report text's sentences that link the treatment and the outcome claim more than the
+    design and the robustness value support. None when the study names no report text.
+
+    >>> wording_sentence({"wording": {"reviewed": True, "supported_level": 2,
+    ...     "supported_grade": "hedged", "evidence": {"design": "observational",
+    ...     "robustness_value": 0.04}, "claims": [{"verdict": "stronger than the evidence"},
+    ...     {"verdict": "supported"}]}})   # doctest: +NORMALIZE_WHITESPACE
+    'In the report text, 1 of the 2 sentences that link the treatment and the outcome claims
+    more than an observational design with robustness value 0.04 supports (up to level 2,
+    hedged); the wording section suggests a rewording.'
+    """
+    block = _mapping(document.get("wording"))
+    if not block:
+        return None
+    if not block.get("reviewed"):
+        return ("The report text named by [study].report_text could not be reviewed; the "
+                "wording section says why.")
+    claims = [c for c in block.get("claims") or [] if isinstance(c, Mapping)]
+    if not claims:
+        return ("No sentence of the report text links the treatment and the outcome, so its "
+                "wording claims nothing about the effect.")
+    supported = supported_phrase(block)
+    if supported is None:
+        return None
+    phrase = evidence_phrase(_mapping(block.get("evidence")))
+    stronger = sum(1 for c in claims if c.get("verdict") == _STRONGER)
+    n = len(claims)
+    if not stronger:
+        if n == 1:
+            return (f"In the report text, 1 sentence links the treatment and the outcome, and "
+                    f"it claims no more than {phrase} supports ({supported}).")
+        return (f"In the report text, {count(n)} sentences link the treatment and the outcome, "
+                f"and none claims more than {phrase} supports ({supported}).")
+    if n == 1:
+        subject = "the one sentence that links the treatment and the outcome claims"
+    else:
+        subject = (f"{count(stronger)} of the {count(n)} sentences that link the treatment and "
+                   f"the outcome {'claims' if stronger == 1 else 'claim'}")
+    rewordings = "a rewording" if stronger == 1 else "rewordings"
+    return (f"In the report text, {subject} more than {phrase} supports ({supported}); the "
+            f"wording section suggests {rewordings}.")
+
+
+def supported_phrase(block: Mapping[str, Any]) -> str | None:
+    """"up to level 3, possible-cause" from a wording block; None without a supported level.
+
+    >>> supported_phrase({"supported_level": 2, "supported_grade": "hedged"})
+    'up to level 2, hedged'
+    """
+    level = block.get("supported_level")
+    if not is_number(level):
+        return None
+    grade = block.get("supported_grade")
+    return f"up to level {level}" + (f", {grade}" if grade else "")
+
+
 def wording_verdict(document: Mapping[str, Any]) -> Verdict:
     """The verdict of ``causalcheck wording`` (schema ``causalcheck/wording/1``).
 
@@ -1088,13 +1202,7 @@ def wording_verdict(document: Mapping[str, Any]) -> Verdict:
     by_verdict = _mapping(_mapping(document.get("counts")).get("by_verdict"))
     counts = {key: int(by_verdict.get(key, sum(1 for c in claims if c.get("verdict") == key)))
               for key in (_SUPPORTED, _STRONGER, _WEAKER)}
-    if evidence.get("design") == "randomized":
-        phrase = "a randomised design"
-    elif not is_number(evidence.get("robustness_value")):
-        phrase = "an observational design without a robustness value"
-    else:
-        phrase = (f"an observational design with robustness value "
-                  f"{significant(evidence['robustness_value'])}")
+    phrase = evidence_phrase(evidence)
     stronger, weaker = counts[_STRONGER], counts[_WEAKER]
     parts = [f"{stronger or 'none'} {'claim' if stronger > 1 else 'claims'} more than "
              f"{phrase} supports (up to level {supported}, "
