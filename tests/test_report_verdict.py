@@ -365,3 +365,20 @@ def test_vet_and_audit_verdicts_count_the_overreaching_sentences():
     text = build_verdict(dict(vet_document(), wording=unread)).text
     assert "could not be reviewed; the wording section says why" in text
     assert "In the report text" not in build_verdict(vet_document()).text
+
+
+def test_implications_sentence_follows_the_holm_decision_not_raw_p_values():
+    # raw p = 0.03 < alpha, but after Holm over two tests it is not rejected: the verdict must
+    # say what the table says (the audit's `rejected`)
+    document = audit_document()
+    document["implications"] = [
+        {"left": "income", "right": "conservation", "given": [], "statistic": 2.2,
+         "p_value": 0.03, "holm_p_value": 0.06, "rejected": False},
+        {"left": "garden", "right": "answered_survey", "given": [], "statistic": 0.4,
+         "p_value": 0.52, "holm_p_value": 0.52, "rejected": False},
+    ]
+    text = build_verdict(document).text
+    assert "do not contradict the 2 independences" in text
+    document["implications"][0].update(p_value=0.001, holm_p_value=0.002, rejected=True)
+    text = build_verdict(document).text
+    assert "contradict 1 of the 2 independences" in text and "Household income" in text

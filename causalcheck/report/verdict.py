@@ -582,17 +582,26 @@ def _implications_sentence(view: ResultView) -> str | None:
     if not tests:
         return None
     alpha = view.alpha
-    rejected = [t for t in tests if t["p_value"] < alpha]
+
+    def is_rejected(test: Mapping[str, Any]) -> bool:
+        # the audit's own decision (Holm-adjusted across all the tests), so the verdict and the
+        # table agree; a document without it falls back to the Holm p-value, then the raw one
+        if isinstance(test.get("rejected"), bool):
+            return bool(test["rejected"])
+        p = test.get("holm_p_value") if is_number(test.get("holm_p_value")) else test["p_value"]
+        return float(p) < alpha
+
+    rejected = [t for t in tests if is_rejected(t)]
     total = len(tests)
     noun = "independence" if total == 1 else "independences"
     if not rejected:
         return (f"The data do not contradict the {count(total)} {noun} the graph implies "
-                f"(at the {percent(alpha)} level); such tests can reject a graph, not confirm "
-                "it.")
+                f"(at the {percent(alpha)} level, Holm-adjusted); such tests can reject a "
+                "graph, not confirm it.")
     worst = min(rejected, key=lambda t: t["p_value"])
     pair = f"{view.label(str(worst.get('left')))} and {view.label(str(worst.get('right')))}"
     return (f"The data contradict {count(len(rejected))} of the {count(total)} {noun} the graph "
-            f"implies (at the {percent(alpha)} level), most clearly between {pair}: the graph "
+            f"implies (at the {percent(alpha)} level, Holm-adjusted), most clearly between {pair}: the graph "
             "may be missing an arrow or a common cause there.")
 
 
