@@ -255,12 +255,15 @@ def vet(source: Study | Reported | Summary, *, threshold: float | None = None,
     robustness = sweep = extreme = None
     analysis_threshold = math.log(threshold) if summary.is_ratio else threshold
     if summary.is_ratio:
-        notes.append(f"std_error, t and log_estimate are on the log scale of the "
-                     f"{summary.measure.replace('_', ' ')}; estimate, the interval and the "
-                     "threshold are ratios")
+        measure = summary.measure.replace('_', ' ')
+        article = "an" if measure[:1] in "aeiou" else "a"
+        notes.append(f"the standard error and t are on the log scale of the {measure} "
+                     "(std_error, t and log_estimate in the JSON); the estimate, the interval "
+                     "and the threshold are ratios")
         notes.append(f"robustness values are partial-R² bounds for a linear regression "
-                     f"estimate; for a {summary.measure.replace('_', ' ')} the E-value is the "
-                     "sensitivity measure, so robustness_value and partial_r2 are null")
+                     f"estimate; for {article} {measure} the E-value is the sensitivity "
+                     "measure, so no robustness value is given (robustness_value and "
+                     "partial_r2 are null in the JSON)")
     elif summary.dof is None:
         notes.append("robustness values need the residual degrees of freedom; give dof, or n "
                      "with covariates (dof = n - covariates - 2)")
@@ -309,8 +312,8 @@ def vet(source: Study | Reported | Summary, *, threshold: float | None = None,
                      "d = estimate / outcome SD and RR ≈ exp(0.91 d), an approximation for "
                      "a roughly normal outcome")
     else:
-        notes.append("no E-value: for a difference give the outcome's standard deviation "
-                     "(outcome_sd, --outcome-sd) to get one")
+        notes.append("no E-value: for a difference, give the outcome's standard deviation "
+                     "([reported] outcome_sd = ..., or --outcome-sd) to get one")
 
     if robustness is None and ev is None:
         raise ReportedError(

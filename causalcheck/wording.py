@@ -1749,13 +1749,13 @@ class Evidence:
 
 
 def format_rv(value: float) -> str:
-    """A robustness value with the fewest digits (at least two) that keep it on its own side
-    of the cut-off, so that 0.09996 is not shown as 0.1.
+    """A robustness value with the fewest digits (at least three, as every report shows an
+    estimate) that keep it on its own side of the cut-off, so that 0.09996 is not shown as 0.1.
 
-    >>> format_rv(0.09996), format_rv(0.04), format_rv(0.1234)
-    ('0.09996', '0.04', '0.12')
+    >>> format_rv(0.09996), format_rv(0.04), format_rv(0.1234), format_rv(0.10629)
+    ('0.09996', '0.04', '0.123', '0.106')
     """
-    for digits in range(2, 12):
+    for digits in range(3, 12):
         shown = f"{value:.{digits}g}"
         if (float(shown) >= CONDITIONAL_CAUSAL_MIN_RV) == (value >= CONDITIONAL_CAUSAL_MIN_RV):
             return shown
@@ -2565,7 +2565,8 @@ class WordingReview:
         """A report for people: the verdict paragraph first, then each claim."""
         def wrap(text: str, indent: str = "", first: str | None = None) -> list[str]:
             return textwrap.wrap(text, width=width, initial_indent=indent if first is None
-                                 else first, subsequent_indent=indent) or [first or indent]
+                                 else first, subsequent_indent=indent,
+                                 break_on_hyphens=False) or [first or indent]
 
         paragraph = wrap(self.verdict_paragraph())
         if quiet:
@@ -2575,7 +2576,8 @@ class WordingReview:
         lines += wrap(f"Read {what} ({self.text_format}, {self.lines} lines, {self.sentences} "
                       "sentences).")
         if self.exposure_terms and self.outcome_terms:
-            lines += wrap(f"Exposure words: {', '.join(self.exposure_terms)}.", "  ", "")
+            cause = "Treatment" if self.subject else "Exposure"
+            lines += wrap(f"{cause} words: {', '.join(self.exposure_terms)}.", "  ", "")
             lines += wrap(f"Outcome words: {', '.join(self.outcome_terms)}.", "  ", "")
         lines += wrap(f"Evidence: {self.evidence.description}.", "  ", "")
         if self.evidence.supported_level is not None:
@@ -2584,8 +2586,10 @@ class WordingReview:
                           f"{CONDITIONAL_CAUSAL_MIN_RV:.2f} supports \"may\" wording (3), "
                           "otherwise association wording (2).", "  ", "")
         counts = ", ".join(f"{g} {k}" for g, k in self.by_grade().items() if k)
-        lines += wrap("Scale: 0 no-link, 1 association, 2 hedged, 3 possible-cause, "
-                      f"4 capacity, 5 causal. Found: {counts or 'no claims'}.", "  ", "")
+        lines += wrap("Scale: 0 no-link, 1 association (\"is linked to\"), 2 hedged (\"may be "
+                      "linked to\"), 3 possible-cause (\"may reduce\"), 4 capacity (\"can "
+                      f"reduce\"), 5 causal (\"reduces\"). Found: {counts or 'no claims'}.",
+                      "  ", "")
         if self.study_claim is not None:
             lines += ["", "The study file's claim"]
             lines += self._claim_lines(self.study_claim, wrap)
@@ -2766,8 +2770,9 @@ def _review(text: str, *, study: Study | None, robustness_value: float | None,
         k = len(mentioned_both)
         shown = ", ".join(str(x) for x in mentioned_both[:10]) + (", ..." if k > 10 else "")
         notes.append(f"{k} other sentence{'s' if k != 1 else ''} (line{'s' if k != 1 else ''} "
-                     f"{shown}) {'mention' if k != 1 else 'mentions'} both the exposure and the "
-                     "outcome without a claim the lexicon recognises (a question, an aim, or "
+                     f"{shown}) {'mention' if k != 1 else 'mentions'} both the "
+                     f"{'treatment' if study is not None else 'exposure'} and the outcome "
+                     "without a claim the lexicon recognises (a question, an aim, or "
                      "wording it lacks); read them, and extend the lexicon with --lexicon if "
                      "they make claims")
     if over_long:
@@ -2781,7 +2786,9 @@ def _review(text: str, *, study: Study | None, robustness_value: float | None,
         notes.extend(f"missing: {m}" for m in evidence.missing)
     subject = None
     if study is not None and study.treatment and study.outcome and terms is not None:
-        subject = f"the treatment {study.treatment!r} and the outcome {study.outcome!r}"
+        # labels, as every other report names the two variables
+        subject = (f"the treatment ({study.label(study.treatment)}) and the outcome "
+                   f"({study.label(study.outcome)})")
     return WordingReview(
         claims=tuple(claims), evidence=evidence, subject=subject,
         exposure_terms=terms.exposure if terms is not None else None,

@@ -54,7 +54,7 @@ def test_json_from_flags_alone(capsys):
 def test_study_file_text_report(capsys, study_file):
     code, out, _ = run(capsys, study_file)
     assert code == 0
-    assert out.startswith("Heat-pump grants and winter energy bills\n")
+    assert out.startswith("causalcheck vet: Heat-pump grants and winter energy bills\n")
     assert "would bring the estimate to the threshold, 0" in out
 
 
@@ -84,11 +84,14 @@ def test_negative_interval_limits_parse(capsys):
 
 def test_gate_exit_codes(capsys, study_file):
     code, _, err = run(capsys, study_file, "--fail-below", "0.2")
-    assert code == 1 and "gate failed: the robustness value is 10.0%, below --fail-below" in err
+    # the share as the flag takes it, with its percentage
+    assert code == 1 and "gate failed: the robustness value is 0.1 (10%), below --fail-below " \
+        "0.2" in err
     code, _, _ = run(capsys, study_file, "--fail-below", "0.05")
     assert code == 0
     code, _, err = run(capsys, study_file, "--fail-below", "0.06", "--gate-on", "ci")
-    assert code == 1 and "robustness value of the 95% CI is 5.8%" in err
+    assert code == 1 and "robustness value of the 95% CI is 0.0585 (5.8%), below " \
+        "--fail-below 0.06" in err
 
 
 def test_out_folder_and_grid_csv(capsys, study_file, tmp_path):

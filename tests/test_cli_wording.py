@@ -59,8 +59,8 @@ def test_text_report_starts_with_the_verdict(folder, capsys):
     assert code == 0 and err == ""
     first = out.split("\n\n")[0].replace("\n", " ")
     assert first == (
-        "5 of 7 sentences make a claim linking the treatment 'grant' and the outcome "
-        "'bill_change'; 3 use causal wording (level 3 or above). 3 claim more than an "
+        "5 of 7 sentences make a claim linking the treatment (Heat-pump grant) and the outcome "
+        "(Change in winter bill); 3 use causal wording (level 3 or above). 3 claim more than an "
         "observational design with robustness value 0.04 supports (up to level 2, hedged) and "
         "2 are supported.")
     assert "  line 6: causal (5) -- stronger than the evidence" in out
@@ -97,7 +97,8 @@ def test_json_follows_the_contract(folder, capsys):
 def test_reads_the_study_report_text_when_no_file_is_given(folder, capsys):
     code, out, _ = run(capsys, "wording", "--study", str(folder / "study.toml"), "--quiet")
     assert code == 0
-    assert out.startswith("5 of 7 sentences make a claim linking the treatment 'grant'")
+    assert out.startswith("5 of 7 sentences make a claim linking the treatment (Heat-pump "
+                          "grant)")
     assert "observational design without a robustness value" in " ".join(out.split())
     assert "\n\n" not in out.strip()  # --quiet: the paragraph alone
 

@@ -17,6 +17,7 @@ from causalcheck.report.numbers import (
     p_value,
     percent,
     quantity,
+    shared_decimals,
     significant,
 )
 
@@ -55,13 +56,35 @@ def test_negative_zero_never_printed():
 
 
 def test_percent_interval_quantity_count_p():
-    assert percent(0.1388) == "14%" and percent(0.1388, 3) == "13.9%"
+    assert percent(0.1388) == "13.9%" and percent(0.1388, 3) == "13.9%"
     assert percent(0.0763, 3) == "7.63%" and percent(1.0) == "100%"
     assert interval(0.7731, 3.1269, like=1.95) == "0.77 to 3.13"
     assert interval(-2.271, -2.008, like=-2.139) == "-2.27 to -2.01"
     assert quantity(-1.2345, "m3/month") == "-1.23 m3/month"
     assert count(5950) == "5,950"
     assert p_value(0.0004) == "p < 0.001" and p_value(0.0316) == "p = 0.032"
+
+
+@pytest.mark.parametrize("share, expected", [
+    # one rule for every share in a report (common practice): at most one decimal from 1% up,
+    # a trailing .0 dropped; two significant figures below 1%
+    (0.348, "34.8%"), (0.0552, "5.5%"), (0.1396, "14%"), (0.14, "14%"), (0.0046, "0.46%"),
+    (0.000457, "0.046%"), (0.0099, "0.99%"), (0.00996, "1%"), (0.99996, "100%"),
+    (0.999, "99.9%"), (-0.25, "-25%"), (0.0, "0%"), (12.5, "1,250%"),
+])
+def test_percent_default_rule(share, expected):
+    assert percent(share) == expected
+
+
+def test_shared_decimals_stop_where_the_uncertainty_starts():
+    # common practice: the smallest standard error to two significant figures, every estimate
+    # of the table to the same decimal place
+    assert shared_decimals([0.08703, 0.1062, 0.0643]) == 3
+    assert shared_decimals([0.6]) == 2 and fixed(0.6, shared_decimals([0.6])) == "0.60"
+    assert shared_decimals([0.0996]) == 2        # rounds to 0.10: two figures are "0.10"
+    assert shared_decimals([250.0]) == 0 and shared_decimals([0, None, -1.0]) is None
+    assert shared_decimals([], default=3) == 3
+    assert interval(-2.2651, -2.0129, decimals=3) == "-2.265 to -2.013"
 
 
 def test_decimals_for():

@@ -141,8 +141,8 @@ def test_audit_verdict_quotes_the_headline_numbers():
     estimates = document["estimates"]
     assert significant(estimates["naive"]["estimate"]) in text
     assert significant(estimates["adjusted"]["estimate"]) in text
-    assert percent(document["sensitivity"]["robustness_value"], 3) in text
-    assert percent(document["sensitivity"]["robustness_value_ci"], 3) in text
+    assert percent(document["sensitivity"]["robustness_value"]) in text
+    assert percent(document["sensitivity"]["robustness_value_ci"]) in text
     # in the order the reader asks: claim, controls, estimates, gap, robustness, next step
     order = ["The claim under test", "declared controls", "naive slope", "Of the gap",
              "hidden confounder explaining", "Measure Conservation-mindedness next"]
@@ -272,15 +272,15 @@ def test_extreme_case_sentence_uses_the_value_to_a_nonzero_threshold():
     text = build_verdict(document).text
     sentence = next(s for s in build_verdict(document).sentences
                     if s.startswith("Even a confounder that explained all"))
-    assert f"at least {percent(expected, 3)} of the treatment's" in sentence
-    assert percent(expected, 3) == "0.695%" and percent(partial_r2, 3) == "1.25%"
-    assert "1.25%" not in text and sentence.endswith("to bring the estimate to 0.5.")
+    assert f"at least {percent(expected)} of the treatment's" in sentence
+    assert percent(expected) == "0.69%" and percent(partial_r2) == "1.2%"
+    assert "1.2%" not in text and sentence.endswith("to bring the estimate to 0.5.")
     # without the extreme-case block, partial_r2 stands in only at a threshold of 0
     bare = {key: document[key] for key in ("schema", "estimate", "std_error", "t", "dof",
                                            "partial_r2", "robustness_value",
                                            "robustness_value_ci", "threshold")}
     assert "explained all" not in build_verdict(bare).text
-    assert "at least 1.25% of" in build_verdict(dict(bare, threshold=0.0)).text
+    assert "at least 1.2% of" in build_verdict(dict(bare, threshold=0.0)).text
 
 
 def test_extreme_share_reads_the_audit_block_too():
@@ -328,9 +328,12 @@ def test_report_notes_keep_identifiers_lowercase():
     from causalcheck.study import Reported
 
     document = _vet_document(Reported(estimate=1.8, std_error=0.2, measure="risk_ratio"))
+    # a note that starts with a code word keeps it as written
+    document["notes"] = [*document.get("notes", []), "log_estimate is the log of the ratio"]
     markdown = render_markdown(document)
-    assert "- std_error, t and log_estimate are on the log scale" in markdown
-    assert "Std_error" not in markdown
+    assert "- log_estimate is the log of the ratio" in markdown
+    assert "(std_error, t and log_estimate in the JSON)" in markdown
+    assert "Std_error" not in markdown and "Log_estimate" not in markdown
 
 
 WORDING_BLOCK = {

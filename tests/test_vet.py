@@ -92,9 +92,10 @@ def test_verdict_paragraph_in_plain_words():
     text = verdict(vet(DARFUR))
     assert ("A hidden confounder explaining 13.9% of the remaining variance of both the treatment "
             "and the outcome") in text
-    assert "would bring the estimate to the threshold, 0; one explaining 7.63% of both would " \
+    # shown as every share in a report: at most one decimal (13.88%, 7.63% and 2.19% above)
+    assert "would bring the estimate to the threshold, 0; one explaining 7.6% of both would " \
            "make the 95% confidence interval include 0" in text
-    assert "at least 2.19% of the treatment's" in text
+    assert "at least 2.2% of the treatment's" in text
 
 
 def test_verdict_when_the_interval_already_includes_the_threshold():
@@ -111,12 +112,13 @@ def test_verdict_for_a_ratio():
 
 def test_text_report_puts_the_verdict_first_then_tables():
     text = render_text(vet(DARFUR))
-    first = text.split("\n\n")[0]
+    heading, first = text.split("\n\n")[:2]
+    assert heading == "causalcheck vet"        # the first line of every command's report
     assert first.startswith("The reported estimate is 0.0973")
     for heading in ("Reported numbers", "Robustness (Cinelli & Hazlett 2020)",
                     "Hypothetical confounders", "Extreme case"):
         assert heading in text
-    assert "13.88%" in text and "7.63%" in text
+    assert "13.9%" in text and "7.6%" in text
     quiet = render_text(vet(DARFUR), quiet=True)
     assert "Reported numbers" not in quiet
     assert render_markdown(vet(DARFUR)).startswith("# Vetting a reported estimate\n\nThe reported")

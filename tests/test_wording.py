@@ -651,8 +651,8 @@ def test_review_document_follows_the_contract(tmp_path):
     assert document["source"]["lines"] == 6 and document["source"]["format"] == "markdown"
     assert any("line 5" in n for n in document["notes"])  # the "whether" sentence
     assert review.verdict_paragraph().startswith(
-        "2 of 4 sentences make a claim linking the treatment 'grant' and the outcome "
-        "'bill_change'; 1 uses causal wording (level 3 or above). 1 claims more than an "
+        "2 of 4 sentences make a claim linking the treatment (Heat-pump grant) and the "
+        "outcome (Change in winter bill (%)); 1 uses causal wording (level 3 or above). 1 claims more than an "
         "observational design with robustness value 0.04 supports")
 
 

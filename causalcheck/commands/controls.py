@@ -105,10 +105,12 @@ def verdict_lines(result: Identification, *, document: Mapping[str, Any] | None 
 
 
 def _wrap(line: str, indent: str = "  ") -> list[str]:
+    # never split a hyphenated word ("Conservation-mindedness") across lines
     if line.startswith("- "):
         return textwrap.wrap(line, WIDTH, initial_indent=indent,
-                             subsequent_indent=indent + "  ")
-    return textwrap.wrap(line, WIDTH, initial_indent=indent, subsequent_indent=indent)
+                             subsequent_indent=indent + "  ", break_on_hyphens=False)
+    return textwrap.wrap(line, WIDTH, initial_indent=indent, subsequent_indent=indent,
+                         break_on_hyphens=False)
 
 
 def _table(header: Sequence[str], rows: Sequence[Sequence[str]], indent: str = "  ") -> list[str]:
@@ -188,7 +190,7 @@ def render_text(result: Identification, study: Study | None = None, *,
                 marks.append("cheapest")
             rows.append([_braced(s) if s else "{} (adjust for nothing)", f"{cost:g}",
                          ", ".join(marks)])
-        out.extend(_table(["set", "cost", ""], rows))
+        out.extend(_table(["set", "cost", "note"], rows))
         if result.optimal_set is not None and result.optimal_set not in result.minimal_sets:
             out.append(f"  optimal set (not minimal: it adds precision variables): "
                        f"{_braced(result.optimal_set)}")
@@ -205,10 +207,15 @@ def render_text(result: Identification, study: Study | None = None, *,
     if result.implications:
         out.append("")
         shown = result.implications[:12]
-        out.append(f"Testable implications (independences the graph implies among measured "
-                   f"variables: {len(result.implications)})")
+        out.append(f"Testable implications: {len(result.implications)} independence"
+                   f"{'s' if len(result.implications) != 1 else ''} the graph implies among "
+                   "measured variables")
+        out.extend(_wrap("(_||_ reads \"independent of\", | \"given\"; `causalcheck audit` "
+                         "tests each against the data: a contradiction means the graph misses "
+                         "an arrow or a common cause)"))
         for implication in shown:
-            out.append(f"  {implication.text()}")
+            given = f" | {', '.join(implication.given)}" if implication.given else ""
+            out.append(f"  {implication.left} _||_ {implication.right}{given}")
         if len(result.implications) > len(shown):
             out.append(f"  ... and {len(result.implications) - len(shown)} more (see --format "
                        "json)")

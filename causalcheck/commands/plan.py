@@ -10,12 +10,13 @@ from __future__ import annotations
 import argparse
 import math
 import sys
+import textwrap
 from pathlib import Path
 from typing import Any
 
 from ..plan import PlanOption, PlanResult, plan
 from ..report.bundle import write_bundle
-from ..report.context import attach_context
+from ..report.context import ResultView, attach_context
 from ..report.numbers import fixed, percent, significant
 from ..report.verdict import plan_verdict
 from ..simulate import SimulationResult
@@ -25,6 +26,12 @@ from .common import add_output_options, emit
 __all__ = ["register", "render_text", "run", "verdict"]
 
 _TABLE_ROWS = 20
+_WIDTH = 96
+
+
+def _wrapped(text: str) -> list[str]:
+    """Lines of at most 96 characters, never splitting a hyphenated word."""
+    return textwrap.wrap(text, width=_WIDTH, break_on_hyphens=False)
 
 
 def _at_least(minimum: int, what: str):
@@ -101,14 +108,15 @@ def verdict(result: PlanResult, *, document: dict[str, Any] | None = None) -> st
     return plan_verdict(document if document is not None else result.to_dict()).text
 
 
-def _header(result: PlanResult) -> list[str]:
-    units = "effects in SD of the outcome per SD of the treatment"
-    title = f"{result.title} — study plan" if result.title else "Study plan"
-    return [
-        f"{title} ({result.source})",
-        (f"Effect of {result.treatment} on {result.outcome} at n = {result.n:,}: true effect "
-        f"{significant(result.true_effect)} under the assumed strengths ({units})."),
-    ]
+def _header(result: PlanResult, document: dict[str, Any] | None = None) -> list[str]:
+    units = "effects in standard deviations of the outcome per standard deviation of the treatment"
+    # the same first line as every other command: causalcheck COMMAND: title
+    title = "causalcheck plan" + (f": {result.title}" if result.title else "")
+    view = ResultView(document if document is not None else {})
+    return [title, *_wrapped(
+        f"Effect of {view.label(result.treatment)} on {view.label(result.outcome)} at n = "
+        f"{result.n:,}: true effect {significant(result.true_effect)} under the assumed "
+        f"strengths ({units}).")]
 
 
 def _option_rows(result: PlanResult) -> tuple[list[str], list[list[str]], int]:
@@ -177,7 +185,7 @@ def _simulation_lines(simulation: SimulationResult, result: PlanResult) -> tuple
     for o in simulation.options:
         rows.append([", ".join(o.measure) or "(nothing)", ", ".join(o.adjust_for) or "(none)",
                      _n(o.mean_estimate, d), _n(o.sd_estimate, d), _n(o.mean_std_error, d),
-                     percent(o.coverage, 3), percent(o.power, 3)])
+                     percent(o.coverage), percent(o.power)])
     return head, rows
 
 
@@ -186,17 +194,20 @@ def render_text(result: PlanResult, *, quiet: bool = False,
     """The plain-text report: verdict paragraph first, then the aligned table of options."""
     if quiet:
         return verdict(result, document=document)
-    lines = [*_header(result), "", verdict(result, document=document), ""]
+    lines = [*_header(result, document), "",
+             *_wrapped(verdict(result, document=document)), ""]
     head, rows, hidden = _option_rows(result)
-    lines.append("Options (* recommended, P on the Pareto front of cost against RMSE, "
-                 "B measure nothing more):")
+    lines += _wrapped("Options (* recommended; P on the efficient front: no other plan is both "
+                      "cheaper and more accurate; B measure nothing more):")
     lines += ["  " + line for line in _align(head, rows, {3, 4, 5, 6, 7, 9, 10})]
     if hidden:
         lines.append(f"  ... {hidden} more option{'s' if hidden != 1 else ''} in the JSON "
                      "output (--format json)")
-    lines += ["", ("Bias and SE are population values at the planned n; RMSE = "
-              "sqrt(bias^2 + SE^2); power is the chance a "
-              f"{percent(1 - result.alpha)} interval excludes zero.")]
+    lines += ["", *_wrapped(
+        "Bias and SE are population values at the planned n; RMSE = sqrt(bias^2 + SE^2), the "
+        "typical error of the estimate; power is the chance a "
+        f"{percent(1 - result.alpha)} interval excludes zero; valid: the adjustment set "
+        "removes all confounding (no bias).")]
     lines += ["", "Assumed strengths (standardised path coefficients):",
               *_strength_lines(result)]
     if result.sweep is not None:
@@ -205,14 +216,15 @@ def render_text(result: PlanResult, *, quiet: bool = False,
                       f"{sweep.seed}), {sweep.used} possible, {sweep.skipped_impossible} "
                       "skipped as impossible.")]
         if sweep.true_effect_low is not None:
-            lines.append(f"  true effect over the ranges: {significant(sweep.true_effect_low)}"
-                         f" to {significant(sweep.true_effect_high)} (median "
+            low, high = significant(sweep.true_effect_low), significant(sweep.true_effect_high)
+            lines.append(f"  true effect: {low} in every draw" if low == high else
+                         f"  true effect over the ranges: {low} to {high} (median "
                          f"{significant(sweep.true_effect_median)})")
     if result.simulation is not None:
         sim = result.simulation
-        lines += ["", (f"Simulation: {sim.replications:,} studies of n = {sim.n:,} (sample "
-                      f"covariances drawn from the Wishart distribution, seed {sim.seed}, "
-                      f"{sim.seconds:.2g} s):")]
+        lines += ["", *_wrapped(
+            f"Simulation: {sim.replications:,} studies of n = {sim.n:,} (sample covariances "
+            f"drawn from the Wishart distribution, seed {sim.seed}, {sim.seconds:.2g} s):")]
         head_s, rows_s = _simulation_lines(sim, result)
         lines += ["  " + line for line in _align(head_s, rows_s, {2, 3, 4, 5, 6})]
     if result.notes:

@@ -23,7 +23,15 @@ from ..errors import ReportedError
 from ..report.bundle import write_bundle
 from ..report.context import attach_context
 from ..report.files import write_atomic
-from ..report.numbers import count, interval, is_number, percent, significant
+from ..report.numbers import (
+    count,
+    fixed,
+    interval,
+    percent,
+    shared_decimals,
+    shown_decimals,
+    significant,
+)
 from ..report.text import wording_lines
 from ..report.verdict import vet_verdict
 from ..reported import apply_overrides
@@ -205,26 +213,53 @@ def _gate(args: argparse.Namespace, result: VetResult) -> GateResult:
     what = "robustness value" if args.gate_on == "estimate" else \
         f"robustness value of the {1 - result.alpha:.0%} CI"
     if value < args.fail_below:
-        gates.fail(f"the {what} is {_pct(value)}, below --fail-below {_pct(args.fail_below)}")
+        gates.fail(f"the {what} is {_below(value, args.fail_below)}, below --fail-below "
+                   f"{args.fail_below:g}")
     return gates
+
+
+def _below(value: float, limit: float) -> str:
+    """``value`` as a share, in as few digits (three at least) as keep it below ``limit``, with
+    its percentage: a gate must never read "0.1, below --fail-below 0.1".
+
+    >>> _below(0.0996, 0.2), _below(0.09996, 0.1)
+    ('0.0996 (10%)', '0.09996 (10%)')
+    """
+    shown = f"{value:.3g}"
+    for digits in range(3, 12):
+        shown = f"{value:.{digits}g}"
+        if float(shown) < limit:
+            break
+    return f"{shown} ({_pct(value)})"
 # --------------------------------------------------------------------------------------------
 # Text
 
 
-def _pct(share: float, decimals: int = 1) -> str:
-    """A share as a percentage: ``decimals`` decimals from 1% up, two significant figures below.
+def _pct(share: float) -> str:
+    """A share as a percentage, the same way every report writes one (:func:`percent`).
 
-    >>> _pct(0.13878), _pct(0.07626, 2), _pct(0.1), _pct(0.00524), _pct(1.0)
-    ('13.9%', '7.63%', '10.0%', '0.52%', '100%')
+    >>> _pct(0.13878), _pct(0.07626), _pct(0.1), _pct(0.00524), _pct(1.0)
+    ('13.9%', '7.6%', '10%', '0.52%', '100%')
     """
-    if not is_number(share):
-        return "n/a"
-    value = 100.0 * float(share)
-    if value >= 99.95:
-        return "100%"
-    if abs(value) >= 1:
-        return f"{value:.{decimals}f}%"
-    return percent(share, 2)
+    return percent(share)
+
+
+def _decimals(estimate: float | None, std_error: float | None) -> int | None:
+    """Decimals for the estimates of the vet tables: the standard error to two significant
+    figures (common practice), more if the estimate as reported shows more.
+
+    >>> _decimals(1.95, 0.6), _decimals(0.0973, 0.0233), _decimals(0.5, 0.1)
+    (2, 4, 2)
+    >>> _decimals(None, None) is None
+    True
+    """
+    places = [d for d in (shared_decimals([std_error]), shown_decimals(estimate))
+              if d is not None]
+    return max(places) if places else None
+
+
+def _at(value: float | None, decimals: int | None) -> str:
+    return _num(value) if decimals is None else fixed(value, decimals)
 
 
 def _num(value: float | None) -> str:
@@ -268,21 +303,26 @@ def render_text(result: VetResult, *, quiet: bool = False,
     """The text report: the verdict paragraph first (it names any overridden numbers), then
     tables and notes."""
     parts: list[str] = []
-    if result.title and not quiet:
-        parts += [result.title, "=" * len(result.title), ""]
+    if not quiet:
+        # the same first line as every other command: causalcheck COMMAND: title
+        parts += ["causalcheck vet" + (f": {result.title}" if result.title else ""), ""]
     parts.append(_wrap(verdict(result, document=document)))
     if quiet:
         return "\n".join(parts) + "\n"
     s = result.summary
     log = " (log scale)" if s.is_ratio else ""
     estimate = s.reported_estimate
+    # a ratio and the standard error of its log are on different scales: decimals of their own
+    places = None if s.is_ratio else _decimals(estimate, s.std_error)
+    se_places = shared_decimals([s.std_error]) if s.is_ratio else places
     rows = [
-        ["estimate", _num(estimate), "given"],
-        [f"standard error{log}", _num(s.std_error), _SE_HOW[s.se_source]],
-        [f"t{log}", significant(s.t, 4), "estimate / standard error"],
-        ["residual dof", count(s.dof) if s.dof is not None else "unknown",
-         s.dof_source or "not given"],
-        [f"{s.ci_level:.0%} CI", interval(*s.reported_ci, like=estimate),
+        ["estimate", _at(estimate, places), "given"],
+        [f"standard error{log}", _at(s.std_error, se_places), _SE_HOW[s.se_source]],
+        [f"t{log}", significant(s.t, 3),
+         "log(estimate) / standard error" if s.is_ratio else "estimate / standard error"],
+        ["residual degrees of freedom", count(s.dof) if s.dof is not None else "unknown",
+         {"dof": "given", None: "not given"}.get(s.dof_source, s.dof_source)],
+        [f"{s.ci_level:.0%} CI", interval(*s.reported_ci, like=estimate, decimals=places),
          "given" if s.ci_given else f"estimate ± {s.critical} quantile × SE"],
         ["p-value (two-sided)", significant(s.p_value, 2), f"{s.critical} distribution"],
     ]
@@ -292,11 +332,11 @@ def render_text(result: VetResult, *, quiet: bool = False,
     theta = _num(result.threshold)
     if rv is not None:
         rows = [
-            ["treatment's partial R² with the outcome", _pct(rv.partial_r2, 2)],
-            [f"robustness value: estimate reaches {theta}", _pct(rv.point, 2)],
-            [f"robustness value: {1 - result.alpha:.0%} CI reaches {theta}", _pct(rv.ci, 2)],
+            ["treatment's partial R² with the outcome", _pct(rv.partial_r2)],
+            [f"robustness value: estimate reaches {theta}", _pct(rv.point)],
+            [f"robustness value: {1 - result.alpha:.0%} CI reaches {theta}", _pct(rv.ci)],
             [f"treatment R² for outcome R² = 100% to reach {theta}",
-             _pct(rv.extreme_r2dz, 2)],
+             _pct(rv.extreme_r2dz)],
         ]
         parts += ["", "Robustness (Cinelli & Hazlett 2020)",
                   _table(["quantity", "value"], rows, numeric=[False, True])]
@@ -306,21 +346,23 @@ def render_text(result: VetResult, *, quiet: bool = False,
         covers = b.ci_includes_threshold().ravel()
         rows = []
         for i, r in enumerate(b.rows()):
-            flag = (f"estimate reaches {theta}" if reach[i]
-                    else f"CI includes {theta}" if covers[i] else "")
-            rows.append([_pct(r["r2dz"]), _pct(r["r2yz"]), _num(r["adjusted_estimate"]),
-                         _num(r["adjusted_std_error"]),
-                         interval(r["ci_low"], r["ci_high"], like=s.estimate), flag])
-        parts += ["", (f"Hypothetical confounders, equally strong with treatment and outcome "
-                      f"(bias toward {theta})"),
-                  _table(["R² treatment", "R² outcome", "adj. estimate", "adj. SE",
-                          f"{1 - result.alpha:.0%} CI", ""], rows,
+            flag = (f"estimate at or past {theta}" if reach[i]
+                    else f"CI includes {theta}" if covers[i] else f"CI excludes {theta}")
+            rows.append([_pct(r["r2dz"]), _pct(r["r2yz"]), _at(r["adjusted_estimate"], places),
+                         _at(r["adjusted_std_error"], se_places),
+                         interval(r["ci_low"], r["ci_high"], like=s.estimate,
+                                  decimals=places), flag])
+        parts += ["", "Hypothetical confounders equally strong with the treatment and the outcome",
+                  _table(["R² treatment", "R² outcome", "adjusted estimate", "adjusted SE",
+                          f"{1 - result.alpha:.0%} CI", "result"], rows,
                          numeric=[True, True, True, True, True, False])]
     if result.extreme is not None:
         e = result.extreme
-        rows = [[_pct(float(r)), _num(float(a))] for r, a in zip(e.r2dz, e.adjusted_estimate)]
-        parts += ["", "Extreme case: a confounder explaining all the outcome's residual variance",
-                  _table(["R² treatment", "adj. estimate"], rows, numeric=[True, True])]
+        rows = [[_pct(float(r)), _at(float(a), places)]
+                for r, a in zip(e.r2dz, e.adjusted_estimate)]
+        parts += ["", ("Extreme case: a confounder explaining all the outcome's remaining "
+                       "variance"),
+                  _table(["R² treatment", "adjusted estimate"], rows, numeric=[True, True])]
     ev = result.e_value
     if ev is not None:
         rr_ci = ("n/a" if ev.risk_ratio_ci is None
@@ -345,9 +387,8 @@ def render_markdown(result: VetResult) -> str:
     """The report as Markdown (for ``--out``): verdict paragraph, then the tables verbatim."""
     title = result.title or "Vetting a reported estimate"
     body = render_text(result)
-    tables = body.split("\n\n", 1)[1] if "\n\n" in body else ""
-    if result.title:
-        tables = tables.split("\n\n", 1)[1] if "\n\n" in tables else tables
+    # drop the heading line and the verdict paragraph: the Markdown gives both its own way
+    tables = body.split("\n\n", 2)[2] if body.count("\n\n") >= 2 else ""
     return f"# {title}\n\n{verdict(result)}\n\n```\n{tables.rstrip()}\n```\n"
 
 

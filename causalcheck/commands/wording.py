@@ -137,6 +137,8 @@ def run(args: argparse.Namespace) -> int:
 
     def text() -> str:
         _, _, rest = review.to_text().partition("\n\n")
-        return "\n".join(textwrap.wrap(document["verdict"], width=92)) + "\n\n" + rest
+        # never split a hyphenated word ("End-of-year") across lines
+        return "\n".join(textwrap.wrap(document["verdict"], width=92,
+                                       break_on_hyphens=False)) + "\n\n" + rest
 
     return emit(args, document, text, gates=gates)

@@ -722,7 +722,7 @@ def _sensitivity_png(document: Mapping[str, Any]) -> bytes:
         axes.plot([0, rv], [0, rv], color=INK, linewidth=0.8, linestyle=(0, (1, 2)))
         axes.plot([rv], [rv], marker="o", markersize=7, markerfacecolor="white",
                   markeredgecolor=INK, markeredgewidth=1.6, linestyle="none", zorder=5)
-        axes.annotate(f"robustness value {percent(rv, 3)}\n(estimate reaches "
+        axes.annotate(f"robustness value {percent(rv)}\n(estimate reaches "
                       f"{significant(threshold)})", (rv, rv), xytext=(9, -9),
                       textcoords="offset points", fontsize=FONT - 0.5, color=INK,
                       ha="left", va="top", annotation_clip=False,

@@ -26,13 +26,17 @@ __all__ = ["escape_markdown", "render_markdown", "render_report_markdown"]
 def escape_markdown(text: str, *, cell: bool = False) -> str:
     """Make user text inert in Markdown: no HTML tags, no entities, and in cells no ``|``.
 
+    Only a ``<`` that could open a tag, a comment or an autolink (followed by a letter, ``/``,
+    ``!`` or ``?``; CommonMark spec, Sec. 6.5-6.6) is escaped, so that a path such as
+    ``rebate <- garden`` or ``p < 0.001`` stays readable in the raw file.
+
     >>> escape_markdown("<script>alert(1)</script> & more")
     '&lt;script>alert(1)&lt;/script> & more'
-    >>> escape_markdown("a|b\\nc", cell=True)
-    'a\\\\|b c'
+    >>> escape_markdown("a <- b, p < 0.001, <!-- x --> <?php"), escape_markdown("a|b\\nc", cell=True)
+    ('a <- b, p < 0.001, &lt;!-- x --> &lt;?php', 'a\\\\|b c')
     """
     text = re.sub(r"&(?=#?[A-Za-z0-9]+;)", "&amp;", str(text))
-    text = text.replace("<", "&lt;")
+    text = re.sub(r"<(?=[A-Za-z/!?])", "&lt;", text)
     if cell:
         text = text.replace("|", "\\|").replace("\r", " ").replace("\n", " ")
     return text

@@ -27,7 +27,17 @@ from typing import Any
 from .cautions import cautions_for
 from .context import ResultView, upper_first
 from .figures import FIGURES, figures_for
-from .numbers import count, interval, is_number, p_value, percent, significant
+from .numbers import (
+    count,
+    fixed,
+    interval,
+    is_number,
+    p_value,
+    percent,
+    shared_decimals,
+    shown_decimals,
+    significant,
+)
 from .references import methods_for
 from .verdict import (
     Verdict,
@@ -156,7 +166,35 @@ def _num(value: Any, digits: int = 3) -> str:
 
 
 def _pct(value: Any) -> str:
-    return percent(value, 3) if is_number(value) else "n/a"
+    return percent(value) if is_number(value) else "n/a"
+
+
+def _at(value: Any, decimals: int | None, *, sign: bool = False) -> str:
+    """A number of an estimates table at the table's decimals (three figures without them)."""
+    if decimals is None:
+        return significant(value, 3, sign=sign)
+    return fixed(value, decimals, sign=sign)
+
+
+def _audit_decimals(view: ResultView) -> int | None:
+    """The decimals of every audit table of estimates: the smallest standard error of the
+    estimates table to two significant figures (common practice)."""
+    estimates = _mapping(view.get("estimates"))
+    entries = [_mapping(estimates.get("naive")), _mapping(estimates.get("adjusted"))]
+    entries += [_mapping(e) for e in estimates.get("by_set") or []]
+    return shared_decimals([e.get(key) for e in entries
+                            for key in ("std_error", "robust_std_error")])
+
+
+def _path_text(view: ResultView, entry: Mapping[str, Any]) -> str:
+    """A path with its arrows and the variables' labels: "Took the rebate ← Has a garden → …"."""
+    tokens = str(entry.get("text") or "").split(" ")
+    nodes = [str(n) for n in entry.get("path") or []]
+    if len(tokens) == 2 * len(nodes) - 1 and tokens[::2] == nodes:
+        arrows = {"->": "→", "<-": "←"}
+        return " ".join(view.label(t) if i % 2 == 0 else arrows.get(t, t)
+                        for i, t in enumerate(tokens))
+    return " – ".join(view.label(n) for n in nodes)
 
 
 def _yes_no(value: Any) -> str:
@@ -168,9 +206,9 @@ def _set_text(view: ResultView, names: Any) -> str:
     return ", ".join(labels) if labels else "(none)"
 
 
-def _figure(name: str) -> FigureRef:
-    caption, alt = _FIGURE_TEXT[name]
-    return FigureRef(name, FIGURES[name][0], caption, alt)
+def _figure(name: str, caption: str | None = None) -> FigureRef:
+    default, alt = _FIGURE_TEXT[name]
+    return FigureRef(name, FIGURES[name][0], caption or default, alt)
 
 
 _PROBLEM_WORDS = {
@@ -281,7 +319,10 @@ def _claim_section(view: ResultView, figures: Sequence[str]) -> Section:
     if sentence:
         blocks.append(Paragraph(sentence))
     if "graph" in figures:
-        blocks.append(_figure("graph"))
+        # the heavy frame marks declared controls: say so only when there are some
+        caption = None if _mapping(view.get("controls")).get("used") else \
+            _FIGURE_TEXT["graph"][0].split(", declared controls")[0] + "."
+        blocks.append(_figure("graph", caption))
     blocks += _controls_blocks(view)
     identifiable = view.get("identifiable")
     if identifiable is not None and view.kind in ("audit", "controls"):
@@ -300,14 +341,13 @@ def _claim_section(view: ResultView, figures: Sequence[str]) -> Section:
     if paths:
         rows = []
         for entry in paths[:40]:
-            nodes = [view.label(str(n)) for n in entry.get("path") or []]
             state = entry.get("open_given_controls")
             if state is None:
                 state_text = "open" if entry.get("open_unadjusted", True) else \
                     "blocked by a collider"
             else:
                 state_text = "open" if state else "closed"
-            rows.append((" – ".join(nodes), state_text))
+            rows.append((_path_text(view, entry), state_text))
         caption = ("Non-causal paths between treatment and outcome, and their state given the "
                    "declared controls" if isinstance(view.get("controls"), Mapping) else
                    "Non-causal paths between treatment and outcome, and their state with no "
@@ -331,11 +371,13 @@ def _audit_estimates(view: ResultView, figures: Sequence[str]) -> Section:
     level = view.confidence
     rows: list[tuple[str, ...]] = []
     emphasis: list[int] = []
+    places = _audit_decimals(view)
 
     def row(label: str, entry: Mapping[str, Any], valid: str) -> tuple[str, ...]:
-        return (label, _num(entry.get("estimate"), 4), _num(entry.get("std_error"), 3),
-                _num(entry.get("robust_std_error"), 3),
-                interval(entry.get("ci_low"), entry.get("ci_high"), like=entry.get("estimate")),
+        return (label, _at(entry.get("estimate"), places), _at(entry.get("std_error"), places),
+                _at(entry.get("robust_std_error"), places),
+                interval(entry.get("ci_low"), entry.get("ci_high"), like=entry.get("estimate"),
+                         decimals=places),
                 valid)
 
     if naive:
@@ -376,21 +418,31 @@ def _audit_estimates(view: ResultView, figures: Sequence[str]) -> Section:
 
 def _vet_estimates(view: ResultView) -> Section:
     document = view.document
-    rows = [("estimate", _num(document.get("estimate"), 4))]
     measure = document.get("measure")
+    is_ratio = measure in ("risk_ratio", "odds_ratio", "hazard_ratio")
+    se = document.get("std_error")
+    estimate = document.get("estimate")
+    # the standard error to two figures and the estimate to the same decimals (more if the
+    # estimate as reported shows more); a ratio and the standard error of its log each get
+    # their own
+    se_places = shared_decimals([se])
+    places = None if is_ratio else max(
+        [d for d in (se_places, shown_decimals(estimate)) if d is not None], default=None)
+    if not is_ratio:
+        se_places = places
+    rows = [("estimate", _at(estimate, places))]
     if measure:
         rows.append(("measure", str(measure).replace("_", " ")))
-    se_label = "standard error" + (" (of the log ratio)" if measure in
-                                   ("risk_ratio", "odds_ratio", "hazard_ratio") else "")
-    rows.append((se_label, _num(document.get("std_error"), 4)))
-    rows.append(("t", _num(document.get("t"), 4)))
+    se_label = "standard error" + (" (of the log ratio)" if is_ratio else "")
+    rows.append((se_label, _at(se, se_places)))
+    rows.append(("t", _num(document.get("t"), 3)))
     rows.append(("residual degrees of freedom",
                  count(document.get("dof")) if is_number(document.get("dof")) else "unknown"))
     if is_number(document.get("ci_low")):
         level = document.get("ci_level")
         rows.append((f"{percent(level) if is_number(level) else view.confidence} CI",
                      interval(document.get("ci_low"), document.get("ci_high"),
-                              like=document.get("estimate"))))
+                              like=document.get("estimate"), decimals=places)))
     if is_number(document.get("p_value")):
         rows.append(("p-value (two-sided)", p_value(document["p_value"])
                      .removeprefix("p = ").removeprefix("p ")))
@@ -417,6 +469,8 @@ def _plan_estimates(view: ResultView, figures: Sequence[str]) -> Section:
                    key=lambda o: (o.get("cost") or 0, o.get("rmse") or 0))
     rows = []
     emphasis = []
+    # as the terminal table: the smallest standard error to two figures, at least 3 decimals
+    places = max(3, shared_decimals([o.get("std_error") for o in options]) or 3)
     for option in shown:
         if key(option) == key(recommended):
             emphasis.append(len(rows))
@@ -431,8 +485,8 @@ def _plan_estimates(view: ResultView, figures: Sequence[str]) -> Section:
             flags.append("over budget")
         rows.append((_set_text(view, option.get("measure")) if option.get("measure")
                      else "(nothing more)", _set_text(view, option.get("adjust_for")),
-                     _num(option.get("cost")), significant(option.get("bias"), 3, sign=True),
-                     _num(option.get("std_error")), _num(option.get("rmse")),
+                     _num(option.get("cost")), _at(option.get("bias"), places, sign=True),
+                     _at(option.get("std_error"), places), _at(option.get("rmse"), places),
                      _pct(option.get("power")) if "power" in option else "n/a",
                      _yes_no(option.get("valid")), ", ".join(flags)))
     hidden = len(options) - len(shown)
@@ -467,8 +521,10 @@ def _plan_estimates(view: ResultView, figures: Sequence[str]) -> Section:
                 continue
             sim_rows.append((_set_text(view, option.get("measure")) if option.get("measure")
                              else "(nothing more)", _set_text(view, option.get("adjust_for")),
-                             _num(option.get("mean_estimate")), _num(option.get("sd_estimate")),
-                             _num(option.get("mean_std_error")), _pct(option.get("coverage")),
+                             _at(option.get("mean_estimate"), places),
+                             _at(option.get("sd_estimate"), places),
+                             _at(option.get("mean_std_error"), places),
+                             _pct(option.get("coverage")),
                              _pct(option.get("power"))))
         seed = simulation.get("seed")
         blocks.append(Table(("measure", "adjust for", "mean estimate", "SD", "mean SE",
@@ -477,24 +533,46 @@ def _plan_estimates(view: ResultView, figures: Sequence[str]) -> Section:
                             f"{count(simulation.get('replications'))} simulated studies of n = "
                             f"{count(simulation.get('n'))} (Wishart draws, seed {seed})"))
     strengths = _mapping(document.get("strengths"))
-    listed = strengths.get("strengths") if isinstance(strengths.get("strengths"), list) else []
+    # the plan document lists them under "edges" ("a -> b" strings); "strengths" kept for
+    # documents that list them under that name with edges as pairs
+    listed = next((strengths[k] for k in ("edges", "strengths")
+                   if isinstance(strengths.get(k), list)), [])
     if listed:
         rows_s = []
         for entry in listed:
             if not isinstance(entry, Mapping):
                 continue
             edge = entry.get("edge")
+            if isinstance(edge, str) and "->" in edge:
+                edge = [part.strip() for part in edge.split("->")]
             edge_text = " → ".join(view.label(str(e)) for e in edge) \
                 if isinstance(edge, (list, tuple)) else str(edge)
             source = str(entry.get("source") or "")
             low, high = entry.get("low"), entry.get("high")
-            range_text = interval(low, high, like=entry.get("value")) \
-                if source == "range" else ""
-            rows_s.append((edge_text, _num(entry.get("value")), source, range_text))
-        blocks.append(Table(("edge", "strength", "from", "range"), tuple(rows_s),
+            range_text = f"{_num(low)} to {_num(high)}" if source == "range" else ""
+            value = _num(entry.get("value")) + (" (midpoint)" if source == "range" else "")
+            rows_s.append((edge_text, value, _STRENGTH_SOURCES.get(source, source),
+                           range_text))
+        blocks.append(Table(("arrow", "strength", "from", "range swept"), tuple(rows_s),
                             (False, True, False, True),
                             "Assumed standardised path strengths"))
+    sweep = _mapping(document.get("range_sweep"))
+    if is_number(sweep.get("requested")):
+        effect = _mapping(sweep.get("true_effect"))
+        text = (f"The strength ranges were swept with {count(sweep['requested'])} "
+                f"Latin-hypercube draws (seed {sweep.get('seed')}); "
+                f"{count(sweep.get('used'))} gave a possible model.")
+        low, high = effect.get("low"), effect.get("high")
+        if is_number(low) and is_number(high):
+            text += (f" The true effect is {_num(low)} in every draw." if _num(low) == _num(high)
+                     else f" The true effect ranges from {_num(low)} to {_num(high)} over "
+                     "them.")
+        blocks.append(Paragraph(text))
     return Section("estimates", "Measurement plans", tuple(blocks))
+
+
+_STRENGTH_SOURCES = {"study": "study file", "range": "study file, a range",
+                     "default": "default (not in [strengths])"}
 
 
 def _wording_estimates(view: ResultView) -> Section:
@@ -523,21 +601,32 @@ def _decomposition_section(view: ResultView, figures: Sequence[str]) -> Section 
     if not rows_in and not shifts:
         return None
     blocks: list[Block] = []
+    places = _audit_decimals(view)
     if rows_in:
         naive, target, _ = decomposition_parts(view.document)
-        rows = [(view.label(str(r.get("variable"))), _num(r.get("gamma"), 4),
-                 _num(r.get("delta"), 4), _num(r.get("contribution"), 4), _pct(r.get("share")))
+        # γ and δ are in each covariate's own units: three figures each; the contributions
+        # are in the outcome's units, at the decimals of the estimates table
+        rows = [(view.label(str(r.get("variable"))), _num(r.get("gamma")),
+                 _num(r.get("delta")), _at(r.get("contribution"), places, sign=True),
+                 _pct(r.get("share")))
                 for r in rows_in]
         gap = naive - target if is_number(naive) and is_number(target) else None
-        rows.append(("total (naive − adjusted)", "", "", _num(gap, 4),
+        rows.append(("total (naive − adjusted)", "", "", _at(gap, places, sign=True),
                      "100%" if gap else "n/a"))
         towards = "adjusted" if decomposition_target(view.document) == "adjusted" \
             else "declared controls'"
-        blocks.append(Paragraph(
-            f"The naive slope ({_num(naive, 4)}) minus the {towards} estimate "
-            f"({_num(target, 4)}) splits exactly into one term per covariate: γ, the "
-            "covariate's coefficient in the adjusted regression, times δ, the slope of the "
-            "covariate on the treatment given the other covariates."))
+        text = (f"The naive slope ({_at(naive, places)}) minus the {towards} estimate "
+                f"({_at(target, places)}) splits exactly into one term per covariate: γ, the "
+                "covariate's coefficient in the adjusted regression, times δ, the slope of the "
+                "covariate on the treatment given the other covariates. A positive term means "
+                "leaving the covariate out made the naive slope larger; adjusting for it moves "
+                "the slope down by that much (a step to the left in the chart).")
+        categorical = [view.label(str(r.get("variable"))) for r in rows_in
+                       if not is_number(r.get("gamma"))]
+        if categorical:
+            text += (f" A categorical covariate ({', '.join(categorical)}) has one γ and one δ "
+                     "per category, so only its total is shown.")
+        blocks.append(Paragraph(text))
         blocks.append(Table(("covariate", "γ", "δ", "contribution γ·δ", "share of the gap"),
                             tuple(rows), (False, True, True, True, True),
                             "Where the gap between the naive and adjusted slopes comes from",
@@ -550,9 +639,9 @@ def _decomposition_section(view: ResultView, figures: Sequence[str]) -> Section 
             problems = ", ".join(_PROBLEM_WORDS.get(str(p), str(p)).split(":")[0]
                                  for p in shift.get("problems") or []) or "n/a"
             rows.append((view.label(str(shift.get("variable"))), problems,
-                         _num(shift.get("estimate_without"), 4),
-                         _num(shift.get("estimate_with"), 4),
-                         significant(shift.get("shift"), 3, sign=True)))
+                         _at(shift.get("estimate_without"), places),
+                         _at(shift.get("estimate_with"), places),
+                         _at(shift.get("shift"), places, sign=True)))
         blocks.append(Table(("control", "problem", "without it", "with it", "change"),
                             tuple(rows), (False, False, True, True, True),
                             "What each invalid declared control does when added to the "
@@ -573,11 +662,12 @@ def _sensitivity_section(view: ResultView, figures: Sequence[str]) -> Section | 
         return None
     blocks: list[Block] = []
     theta = significant(view.threshold)
+    places = _audit_decimals(view) if view.kind == "audit" else None
     if is_number(rv):
         rows = []
         of = block.get("of")
         if view.kind == "audit" and of:
-            rows.append(("estimate analysed", f"{of}: {_num(block.get('estimate'), 4)}"))
+            rows.append(("estimate analysed", f"{of}: {_at(block.get('estimate'), places)}"))
         rows += [("threshold (the claim fails here)", theta),
                  ("partial R² of the treatment with the outcome", _pct(block.get("partial_r2"))),
                  (f"robustness value: estimate reaches {theta}", _pct(rv)),
@@ -607,24 +697,33 @@ def _sensitivity_section(view: ResultView, figures: Sequence[str]) -> Section | 
             rows.append((view.label(str(m["variable"])), f"{significant(m['multiplier'])}×",
                          own,
                          f"{_pct(m['r2_treatment'])} / {_pct(m['r2_outcome'])}",
-                         _num(estimate, 4),
-                         interval(m["adjusted_ci_low"], m["adjusted_ci_high"], like=estimate)))
-        blocks.append(Table(("benchmark", "k", "its partial R² (treatment / outcome)",
-                             "confounder k times as strong (treatment / outcome)",
+                         _at(estimate, places),
+                         interval(m["adjusted_ci_low"], m["adjusted_ci_high"], like=estimate,
+                                  decimals=places)))
+        blocks.append(Paragraph(
+            "Each row is a hidden confounder k times as strong as a measured covariate. Its "
+            "partial R² are computed from the covariate's own on the scale the bound uses "
+            "(R²/(1 − R²), Cinelli & Hazlett 2020, Sec. 6), so even at k = 1 they are a little "
+            "larger than the covariate's."))
+        blocks.append(Table(("covariate", "k", "covariate's R²", "confounder's R²",
                              "adjusted estimate", f"{view.confidence} CI"), tuple(rows),
                             (False, True, True, True, True, True),
-                            "A hidden confounder k times as strong as a measured covariate"))
+                            "A hidden confounder k times as strong as a measured covariate "
+                            "(partial R² with the treatment / with the outcome)"))
     if "sensitivity" in figures:
-        blocks.append(_figure("sensitivity"))
+        # the squares are drawn only when there are benchmarks to draw
+        blocks.append(_figure("sensitivity", None if marks else _FIGURE_TEXT["sensitivity"][0]
+                              .split(", squares mark")[0] + "."))
     stability = _mapping(block.get("coefficient_stability"))
     if stability:
         rows = [("maximum R² assumed", _num(stability.get("r2_max"))),
                 ("δ (selection on unobservables relative to observables)",
                  _num(stability.get("delta"))),
-                ("bias-adjusted estimate at that δ", _num(stability.get("adjusted_estimate"),
-                                                          4)),
+                ("bias-adjusted estimate at that δ", _at(stability.get("adjusted_estimate"),
+                                                         places)),
                 (f"δ that brings the estimate to {theta}",
                  _num(stability.get("delta_for_threshold")))]
+        blocks.append(Paragraph(_stability_text(stability, theta)))
         blocks.append(Table(("quantity", "value"), tuple(rows), (False, True),
                             "Coefficient stability (Oster 2019)"))
     if e_value:
@@ -638,8 +737,36 @@ def _sensitivity_section(view: ResultView, figures: Sequence[str]) -> Section | 
                    tuple(blocks))
 
 
-_STRENGTH_SCALE = ("Strength scale: 0 no relation stated, 1 association, 2 hedged association, "
-                   "3 conditional causal (may, might, could), 4 can cause, 5 causal claim.")
+def _stability_text(stability: Mapping[str, Any], theta: str) -> str:
+    """What the coefficient-stability numbers mean, in words (Oster 2019, Sec. 3)."""
+    text = ("δ compares selection on unobserved confounders with selection on the observed "
+            "covariates: δ = 1 means the unobserved ones matter as much as the observed ones, "
+            "given an R² the full model would reach (the maximum R²).")
+    r2_max, r2 = stability.get("r2_max"), stability.get("adjusted_r2")
+    if is_number(r2_max) and is_number(r2) and r2 > 0:
+        text += (f" Here the maximum R² is {significant(r2_max / r2, 2)} times the adjusted "
+                 f"regression's R² of {_num(r2)}.")
+    delta = stability.get("delta_for_threshold")
+    if is_number(delta) and delta < 0:
+        text += (f" A negative δ to reach {theta} means the unobserved confounding would have "
+                 "to work against the observed one")
+        naive = stability.get("naive_estimate")
+        adjusted = stability.get("adjusted_estimate_observed")
+        threshold = stability.get("threshold")
+        if is_number(naive) and is_number(adjusted) and is_number(threshold) and \
+                (naive - threshold) * (adjusted - threshold) > 0 and \
+                abs(adjusted - threshold) > abs(naive - threshold):
+            text += (f": adjusting for the covariates moved the estimate away from {theta}, "
+                     "and only confounding in the opposite direction could bring it back")
+        text += "."
+    return text
+
+
+# the grade names are those of the JSON and the terminal ("5 causal"); the words say what each
+# level means
+_STRENGTH_SCALE = ("Strength scale: 0 no-link (no relation stated), 1 association, 2 hedged "
+                   "(a hedged association), 3 possible-cause (may, might, could), 4 capacity "
+                   "(can cause), 5 causal (a causal claim).")
 
 
 def _claim_rows(claims: Sequence[Mapping[str, Any]]) -> tuple[tuple[str, ...], ...]:
@@ -679,7 +806,7 @@ def _wording_section(view: ResultView) -> Section | None:
     blocks: list[Block] = [Paragraph(text), Paragraph(
         _STRENGTH_SCALE + " The cut-offs are common practice: a randomised design supports "
         "causal wording (5); an observational one with a robustness value of at least "
-        f"{significant(cutoff if is_number(cutoff) else 0.1)} supports \"may\" wording (3), "
+        f"{cutoff if is_number(cutoff) else 0.1:.2f} supports \"may\" wording (3), "
         "otherwise association wording (2).", "note")]
     study_claim = _mapping(block.get("study_claim"))
     if study_claim.get("verdict") and study_claim.get("verdict") != "supported":

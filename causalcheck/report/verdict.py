@@ -9,8 +9,9 @@ A verdict answers, in plain sentences and in this order: the claim under test; w
 declared controls are a valid adjustment set; the naive and the adjusted estimate; how much of
 the gap between them each leading confounder explains; how strong a hidden confounder would
 have to be to bring the estimate to the threshold, against the strongest measured covariate;
-and what to measure next. Numbers are rounded to three significant figures (two for shares)
-and carry the units declared in ``[variables]``.
+and what to measure next. Numbers are rounded to three significant figures, a standard error
+to two (``0.60``), shares to at most one decimal of a percent (``34.8%``), and carry the units
+declared in ``[variables]``.
 
 Examples
 --------
@@ -18,12 +19,12 @@ Examples
 ...             "t": 3.25, "dof": 836, "partial_r2": 0.0125, "robustness_value": 0.106,
 ...             "robustness_value_ci": 0.041, "e_value": None}
 >>> print(build_verdict(document).text)   # doctest: +NORMALIZE_WHITESPACE
-The reported estimate is 1.95 (standard error 0.6; t = 3.25 on 836 residual degrees of
+The reported estimate is 1.95 (standard error 0.60; t = 3.25 on 836 residual degrees of
 freedom). A hidden confounder explaining 10.6% of the remaining variance of both the treatment
 and the outcome (the part the covariates in the model leave unexplained) would bring the
 estimate to the threshold, 0; one explaining 4.1% of both would make the 95% confidence
 interval include 0. Even a confounder that explained all the remaining variance of the outcome
-would have to explain at least 1.25% of the treatment's remaining variance to bring the
+would have to explain at least 1.2% of the treatment's remaining variance to bring the
 estimate to 0. Whether confounders this strong are plausible is a judgement about the study:
 compare them with the strongest measured covariates (causalcheck audit benchmarks them when the
 data are at hand).
@@ -43,7 +44,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from .context import ResultView, lower_first, upper_first
-from .numbers import count, fixed, interval, is_number, percent, significant
+from .numbers import count, fixed, interval, is_number, percent, shared_decimals, significant
 
 __all__ = [
     "VERDICT_BUILDERS",
@@ -337,14 +338,14 @@ def _robustness_sentences(view: ResultView, sensitivity: Mapping[str, Any],
             f"The estimate is already at or beyond the threshold ({threshold}), so no hidden "
             "confounder is needed to overturn the claim.")
         return sentences
-    text = (f"a hidden confounder explaining {percent(rv, 3)} of the remaining variance of "
+    text = (f"a hidden confounder explaining {percent(rv)} of the remaining variance of "
             f"both the treatment and the outcome would bring the estimate to the threshold, "
             f"{threshold}")
     if is_number(rv_ci):
         if rv_ci <= 0:
             text += f"; the {view.confidence} confidence interval already includes {threshold}"
         else:
-            text += (f"; one explaining {percent(rv_ci, 3)} would make the {view.confidence} "
+            text += (f"; one explaining {percent(rv_ci)} would make the {view.confidence} "
                      f"confidence interval include {threshold}")
     strongest = strongest_benchmark(sensitivity.get("benchmarks"))
     if strongest is not None:
@@ -420,9 +421,9 @@ def _next_step(view: ResultView, *, identifiable: Any) -> str:
     groups = [g for g in view.get("measure_to_identify") or [] if isinstance(g, (list, tuple))]
     if identifiable is False and groups:
         best = list(groups[0])
-        return (f"Measure {_set_phrase(view, best)} next{_cost_phrase(view, best)}: with it, "
-                "a valid adjustment set would exist and the effect could be estimated by "
-                "adjustment.")
+        return (f"Measure {_set_phrase(view, best)} next{_cost_phrase(view, best)}: with "
+                f"{'them' if len(best) > 1 else 'it'}, a valid adjustment set would exist and "
+                "the effect could be estimated by adjustment.")
     hidden = _unmeasured_confounders(view)
     if hidden:
         first = hidden[0]
@@ -700,7 +701,8 @@ def controls_verdict(document: Mapping[str, Any]) -> Verdict:
             if isinstance(problem, Mapping):
                 detail = str(problem.get("detail") or _problem_phrase(view, problem)).strip()
                 details.append(_sentence(detail, view))
-        sentences.append(" ".join([head] + details))
+        # one finding a problem: the HTML and Markdown reports list them one a bullet
+        sentences += [head, *details]
     if document.get("has_causal_path") is False:
         sentences.append(f"The graph has no directed path from {t} to {y}, so it says {t} has "
                          f"no effect on {y}; an analysis can only test that null effect.")
@@ -774,7 +776,8 @@ def _vet_estimate_sentence(view: ResultView) -> str | None:
     elif is_number(document.get("std_error")):
         # for a ratio the standard error is that of the log ratio, never of the ratio itself
         scale = "log-scale " if is_ratio or document.get("scale") == "log" else ""
-        details.append(f"{scale}standard error {significant(document['std_error'])}")
+        se = document["std_error"]        # two significant figures, trailing zero kept: 0.60
+        details.append(f"{scale}standard error {fixed(se, shared_decimals([se]) or 0)}")
     t_value = document.get("t")
     if is_number(t_value):
         scale = " of the log ratio" if is_ratio else ""
@@ -805,26 +808,26 @@ def _vet_robustness_sentences(view: ResultView) -> list[str]:
     if is_number(rv_ci) and rv_ci <= 0:
         sentences.append(
             f"The {level} confidence interval already includes {theta}, so no hidden "
-            f"confounding is needed for that; a hidden confounder explaining {percent(rv, 3)} "
+            f"confounding is needed for that; a hidden confounder explaining {percent(rv)} "
             f"{_REMAINING} would bring the estimate itself to {theta}.")
     else:
-        text = f"A hidden confounder explaining {percent(rv, 3)} {_REMAINING} would bring " \
+        text = f"A hidden confounder explaining {percent(rv)} {_REMAINING} would bring " \
                f"the estimate to the threshold, {theta}"
         if is_number(rv_ci):
             outcome_share = document.get("robustness_value_ci_outcome_r2")
             if is_number(outcome_share) and abs(outcome_share - rv_ci) > 1e-9 * max(rv_ci, 1):
-                text += (f"; one explaining {percent(rv_ci, 3)} of the treatment's and "
-                         f"{percent(outcome_share, 3)} of the outcome's remaining variance "
+                text += (f"; one explaining {percent(rv_ci)} of the treatment's and "
+                         f"{percent(outcome_share)} of the outcome's remaining variance "
                          f"would make the {level} confidence interval include {theta}")
             else:
-                text += (f"; one explaining {percent(rv_ci, 3)} of both would make the {level} "
+                text += (f"; one explaining {percent(rv_ci)} of both would make the {level} "
                          f"confidence interval include {theta}")
         sentences.append(text + ".")
     extreme = extreme_share(document, threshold=view.threshold)
     if is_number(extreme):
         sentences.append(
             "Even a confounder that explained all the remaining variance of the outcome would "
-            f"have to explain at least {percent(extreme, 3)} of the treatment's remaining "
+            f"have to explain at least {percent(extreme)} of the treatment's remaining "
             f"variance to bring the estimate to {theta}.")
     return sentences
 
@@ -929,7 +932,7 @@ def _share_of_studies(power: Any) -> str:
         return "nearly all studies"
     if power < 0.005:
         return "almost no studies"
-    return f"about {percent(power)} of studies"
+    return f"about {percent(power, 2)} of studies"      # "about": whole percents
 
 
 def _plan_key(option: Mapping[str, Any]) -> tuple[tuple[str, ...], tuple[str, ...]]:
@@ -1093,8 +1096,8 @@ def plan_verdict(document: Mapping[str, Any]) -> Verdict:
         if match is not None:
             sentences.append(
                 f"In {count(simulation.get('replications'))} simulated studies its {level} "
-                f"intervals covered the true effect {percent(match.get('coverage'), 3)} of the "
-                f"time and excluded zero in {percent(match.get('power'), 3)}.")
+                f"intervals covered the true effect {percent(match.get('coverage'))} of the "
+                f"time and excluded zero in {percent(match.get('power'))}.")
     # the first finding already says what to measure next
     return Verdict("plan", tuple(sentences), None)
 
@@ -1192,7 +1195,9 @@ def wording_verdict(document: Mapping[str, Any]) -> Verdict:
         sentences_total = len(claims)
     terms = _mapping(document.get("terms"))
     if view.treatment and view.outcome and terms:
-        about = f"linking the treatment {view.treatment!r} and the outcome {view.outcome!r}"
+        # labels, as the other verdicts name the two variables
+        about = (f"linking the treatment ({view.label(view.treatment)}) and the outcome "
+                 f"({view.label(view.outcome)})")
     elif terms.get("exposure") and terms.get("outcome"):
         about = f"linking {terms['exposure'][0]!r} and {terms['outcome'][0]!r}"
     else:

@@ -2,7 +2,7 @@
 
 Run::
 
-    /work/venv/bin/python -m pytest -m benchmark tests/benchmarks/test_bench_engines.py -s
+    python -m pytest -m benchmark tests/benchmarks/test_bench_engines.py -s
 
 The data are made by ``tests/benchmarks/make_big_file.py`` under /tmp/causalcheck-bench (about
 3.1 GB; generated on first use). Every measurement runs in a fresh Python process; its time is
