@@ -94,6 +94,7 @@ from .moments import (
     _csv_separator,
     _kind_of_file,
     _level_text,
+    check_enough_rows,
     design_from_frame,
     dummy_column,
     file_columns,
@@ -412,14 +413,7 @@ def _finish(total: dict, *, study: Study | None, source: str, csv_text: bool,
 def _check_moments(moments: Moments, rows: RowCount, study: Study | None, source: str,
                    extremes: Mapping[str, tuple[float, float]]) -> None:
     """The checks of ``moments._check_design``, from moments and column extremes."""
-    p = len(moments.columns)
-    if moments.n < p + 1:
-        raise DataError(
-            f"{source} has {moments.n} usable row{'s' if moments.n != 1 else ''} "
-            f"({rows.dropped_missing} dropped for missing values) but a regression on "
-            f"all {p} design columns together needs at least {p + 1} (the intercept and "
-            f"{p - 1} slopes, plus one degree of freedom for the error); add rows or use "
-            "fewer variables")
+    check_enough_rows(source, moments.n, rows.dropped_missing, len(moments.columns))
     if study is None:
         return
     for role, name in (("treatment", study.treatment), ("outcome", study.outcome)):

@@ -469,28 +469,26 @@ def _check_names(graph: nx.DiGraph, names: Iterable[str], what: str) -> set[str]
     return found
 
 
-def _descendants(graph: nx.DiGraph, sources: Iterable[Hashable]) -> set:
-    """``sources`` and all their descendants."""
+def _reachable(sources: Iterable[Hashable], step) -> set:
+    """``sources`` and every node reached from them by repeating ``step`` (a neighbour map)."""
     seen = set(sources)
     stack = list(seen)
     while stack:
-        for w in graph.successors(stack.pop()):
+        for w in step(stack.pop()):
             if w not in seen:
                 seen.add(w)
                 stack.append(w)
     return seen
+
+
+def _descendants(graph: nx.DiGraph, sources: Iterable[Hashable]) -> set:
+    """``sources`` and all their descendants."""
+    return _reachable(sources, graph.successors)
 
 
 def _ancestors(graph: nx.DiGraph, sources: Iterable[Hashable]) -> set:
     """``sources`` and all their ancestors."""
-    seen = set(sources)
-    stack = list(seen)
-    while stack:
-        for w in graph.predecessors(stack.pop()):
-            if w not in seen:
-                seen.add(w)
-                stack.append(w)
-    return seen
+    return _reachable(sources, graph.predecessors)
 
 
 def causal_nodes(graph: nx.DiGraph, treatment: str, outcome: str) -> frozenset[str]:

@@ -677,15 +677,19 @@ def design_from_frame(frame: pd.DataFrame, variables: Sequence[str], *,
     return design
 
 
-def _check_design(design: Design, study: Study | None, source: str) -> None:
-    p = len(design.columns)
-    if design.n < p + 1:
+def check_enough_rows(source: str, n: int, dropped_missing: int, p: int) -> None:
+    """Refuse fewer usable rows than a regression on all ``p`` design columns needs."""
+    if n < p + 1:
         raise DataError(
-            f"{source} has {design.n} usable row{'s' if design.n != 1 else ''} "
-            f"({design.rows.dropped_missing} dropped for missing values) but a regression on "
+            f"{source} has {n} usable row{'s' if n != 1 else ''} "
+            f"({dropped_missing} dropped for missing values) but a regression on "
             f"all {p} design columns together needs at least {p + 1} (the intercept and "
             f"{p - 1} slopes, plus one degree of freedom for the error); add rows or use "
             "fewer variables")
+
+
+def _check_design(design: Design, study: Study | None, source: str) -> None:
+    check_enough_rows(source, design.n, design.rows.dropped_missing, len(design.columns))
     if study is None:
         return
     for role, name in (("treatment", study.treatment), ("outcome", study.outcome)):
